@@ -1,0 +1,35 @@
+//! # tactread: read braille by touch
+//!
+//! A sensorised fingertip (an array of pressure taxels) slides over raised
+//! braille and records a stream of frames. tactread turns such recordings
+//! into text and measures how well they were read. Everything runs on a CPU.
+//!
+//! The pipeline, one module per stage:
+//!
+//! ```text
+//! recording frames ──► prep ──► net (GRU, trained with CTC) ──► per-frame dot
+//! probabilities (dots 1-6 + blank) ──► decode (beam search with the braille
+//! code's indicator state) ──► ranked character hypotheses ──► lexicon (fst)
+//! rescoring whole words ──► text + metrics + reports
+//! ```
+//!
+//! | stage | module |
+//! | --- | --- |
+//! | cells, Unicode patterns, code tables | [`braille`] |
+//! | frames files and manifests | [`recording`] |
+//!
+//! ## Example: text to cells and back
+//!
+//! ```
+//! use tactread::{cells_to_unicode, Cell};
+//! let cells = [Cell::from_dots(&[1]).unwrap(), Cell::from_dots(&[1, 2]).unwrap()];
+//! assert_eq!(cells_to_unicode(&cells), "\u{2801}\u{2803}");
+//! ```
+#![deny(missing_docs)]
+
+pub mod braille;
+mod error;
+pub mod recording;
+
+pub use braille::{cells_to_unicode, Cell};
+pub use error::{Error, Location, Result};
