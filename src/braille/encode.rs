@@ -276,13 +276,13 @@ impl CodeTable {
 
 fn no_sign_hint(ch: char, lang: &str) -> String {
     if ch.is_whitespace() {
-        "only the space (U+0020) has a cell: split lines and replace tabs before encoding, or use encode_lossy".to_string()
+        "only the space (U+0020) has a cell: split lines and replace tabs before encoding, or drop it (encode_lossy; `--lossy` on the command line)".to_string()
     } else if ('\u{300}'..='\u{36f}').contains(&ch) {
         "a combining accent has no cell of its own: write the accented letter as one precomposed character (Unicode NFC)".to_string()
     } else if Cell::from_char(ch).is_some() {
         "this is already a braille cell: decode it instead of encoding it".to_string()
     } else {
-        format!("the `{lang}` code table has no sign for it: pick another language pack, add a sign to a copy of the table, or drop the character (encode_lossy)")
+        format!("the `{lang}` code table has no sign for it: pick another language pack, add a sign to a copy of the table, or drop the character (encode_lossy; `--lossy` on the command line)")
     }
 }
 

@@ -375,14 +375,16 @@ impl CellReader<'_> {
                 }
                 // A capital indicator is not a digit: it ends a number.
                 self.state.mode = Mode::Text;
-                match (self.state.caps, role) {
-                    (Caps::WordStart | Caps::Word, _) => {
-                        // Capitals inside capitals mean nothing more.
+                match self.state.caps {
+                    Caps::Word => {
+                        // Capitals inside a capitalised word mean nothing
+                        // more (and nothing is dangling to keep in order).
                         self.reject(e, at, out, bad);
                         return;
                     }
-                    (Caps::Letter, _) => self.fail(out, bad),
-                    (Caps::None, _) => {}
+                    // A new indicator before the last one found its letter.
+                    Caps::Letter | Caps::WordStart => self.fail(out, bad),
+                    Caps::None => {}
                 }
                 self.state.caps = if role == Role::Capital {
                     Caps::Letter

@@ -1003,7 +1003,7 @@ impl<'p> Loader<'p> {
                             early.describe(),
                             early.line,
                             late.describe(),
-                            if twins { "" } else { ", or mark one of two signs `opening` if it is read only at the start of a word" },
+                            if twins { "" } else { ", or, if one of them is read only at the start of a word, mark that one `opening`" },
                         ),
                     ));
                 }
