@@ -31,5 +31,5 @@ pub mod braille;
 mod error;
 pub mod recording;
 
-pub use braille::{cells_to_unicode, Cell};
+pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};
