@@ -17,6 +17,7 @@
 //! | --- | --- |
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
+//! | GRU network, output head, CTC loss, Adam | [`net`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -29,6 +30,7 @@
 
 pub mod braille;
 mod error;
+pub mod net;
 pub mod recording;
 
 pub use braille::{cells_to_unicode, Cell};
