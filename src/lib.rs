@@ -29,7 +29,9 @@
 
 pub mod braille;
 mod error;
+pub mod metrics;
 pub mod recording;
+pub mod report;
 
 pub use braille::{cells_to_unicode, Cell};
 pub use error::{Error, Location, Result};
