@@ -17,6 +17,7 @@
 //! | --- | --- |
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
+//! | GRU network, output head, CTC loss, Adam | [`net`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -29,7 +30,10 @@
 
 pub mod braille;
 mod error;
+pub mod metrics;
+pub mod net;
 pub mod recording;
+pub mod report;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};
