@@ -17,6 +17,8 @@
 //! | --- | --- |
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
+//! | beam search, character hypotheses | [`decode`] |
+//! | word lists, fst lexicons, word rescoring | [`lexicon`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -28,7 +30,9 @@
 #![deny(missing_docs)]
 
 pub mod braille;
+pub mod decode;
 mod error;
+pub mod lexicon;
 pub mod recording;
 
 pub use braille::{cells_to_unicode, Cell};
