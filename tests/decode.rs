@@ -289,3 +289,341 @@ fn bad_inputs_are_errors() {
             .is_empty()
     );
 }
+
+// ---------------------------------------------------------------------------
+// Word rescoring with a small stand-in code (used until the language packs'
+// code tables are on main; the pack tests below use the real ones).
+
+use tactread::decode::{BrailleCode, Decoder};
+use tactread::lexicon::{parse_word_list, Lexicon, RescoreWeights};
+use tactread::{Error, Result};
+
+/// Letters a-z as in Unified English Braille grade 1 (ICEB, "The Rules of
+/// Unified English Braille", 2nd ed. 2013, section 3; dot patterns from
+/// memory, matching shared/domain.md's description: a-j top two rows, k-t
+/// add dot 3, u v x y z add dots 3 6 to a-e, w = 2456).
+const UEB_LETTERS: [&[u8]; 26] = [
+    &[1],
+    &[1, 2],
+    &[1, 4],
+    &[1, 4, 5],
+    &[1, 5],
+    &[1, 2, 4],
+    &[1, 2, 4, 5],
+    &[1, 2, 5],
+    &[2, 4],
+    &[2, 4, 5],
+    &[1, 3],
+    &[1, 2, 3],
+    &[1, 3, 4],
+    &[1, 3, 4, 5],
+    &[1, 3, 5],
+    &[1, 2, 3, 4],
+    &[1, 2, 3, 4, 5],
+    &[1, 2, 3, 5],
+    &[2, 3, 4],
+    &[2, 3, 4, 5],
+    &[1, 3, 6],
+    &[1, 2, 3, 6],
+    &[2, 4, 5, 6],
+    &[1, 3, 4, 6],
+    &[1, 3, 4, 5, 6],
+    &[1, 3, 5, 6],
+];
+const CAPITAL: u8 = 0b10_0000; // dots 6
+const NUMERIC: u8 = 0b11_1100; // dots 3456
+
+fn letter_mask(ch: char) -> Option<u8> {
+    let i = (ch as u32).checked_sub('a' as u32)? as usize;
+    UEB_LETTERS
+        .get(i)
+        .map(|d| Cell::from_dots(d).unwrap().mask())
+}
+
+struct StandIn;
+
+#[derive(Clone, Copy, Default)]
+struct StandInReader {
+    capital: bool,
+    numeric: bool,
+}
+
+impl CodeReader for StandInReader {
+    type State = (bool, bool);
+    fn push(&mut self, cell: Cell) -> String {
+        let m = cell.mask();
+        if m == 0 {
+            self.numeric = false;
+            self.capital = false;
+            return " ".into();
+        }
+        if m == CAPITAL {
+            self.capital = true;
+            return String::new();
+        }
+        if m == NUMERIC {
+            self.numeric = true;
+            return String::new();
+        }
+        let letter = (0..26u8).find(|&i| letter_mask((b'a' + i) as char) == Some(m));
+        let out = match letter {
+            Some(i) if self.numeric && i < 10 => ((b'0' + (i + 1) % 10) as char).to_string(),
+            Some(i) => {
+                self.numeric = false;
+                let c = (b'a' + i) as char;
+                if self.capital {
+                    c.to_ascii_uppercase().to_string()
+                } else {
+                    c.to_string()
+                }
+            }
+            None => cell.to_char().to_string(),
+        };
+        self.capital = false;
+        out
+    }
+    fn state(&self) -> (bool, bool) {
+        (self.capital, self.numeric)
+    }
+    fn finish(self) -> String {
+        String::new()
+    }
+}
+
+impl BrailleCode for StandIn {
+    type Reader<'a> = StandInReader;
+    fn reader(&self) -> StandInReader {
+        StandInReader::default()
+    }
+    fn encode(&self, text: &str) -> Result<Vec<Cell>> {
+        let mut out = Vec::new();
+        let mut numeric = false;
+        for (i, ch) in text.chars().enumerate() {
+            if ch == ' ' {
+                out.push(Cell::EMPTY);
+                numeric = false;
+            } else if let Some(d) = ch.to_digit(10) {
+                if !numeric {
+                    out.push(Cell::from_mask(NUMERIC));
+                    numeric = true;
+                }
+                let letter = (b'a' + ((d + 9) % 10) as u8) as char;
+                out.push(Cell::from_mask(letter_mask(letter).unwrap()));
+            } else if let Some(m) = letter_mask(ch.to_ascii_lowercase()) {
+                if ch.is_ascii_uppercase() {
+                    out.push(Cell::from_mask(CAPITAL));
+                }
+                out.push(Cell::from_mask(m));
+            } else {
+                return Err(Error::Unencodable {
+                    ch,
+                    code: ch as u32,
+                    position: i + 1,
+                    lang: "stand-in".into(),
+                    hint: "test code: letters, digits and spaces only".into(),
+                });
+            }
+        }
+        Ok(out)
+    }
+}
+
+/// Frames for cells read with the given confidence: each cell two frames,
+/// a blank frame after it. `(mask, p, alt)`: the network gives the cell
+/// probability `p` and the rest to `alt` (mask) when given; 1e-4 floor
+/// elsewhere, renormalised.
+fn frames_for(cells: &[(u8, f64, Option<u8>)]) -> Array2<f32> {
+    let floor = 1e-4;
+    let mut rows: Vec<Vec<f64>> = Vec::new();
+    let row = |top: usize, p: f64, alt: Option<u8>| {
+        let mut r = vec![floor; N_CLASSES];
+        r[top] = p;
+        if let Some(a) = alt {
+            r[a as usize] = 1.0 - p;
+        }
+        let z: f64 = r.iter().sum();
+        r.iter().map(|x| x / z).collect::<Vec<f64>>()
+    };
+    rows.push(row(BLANK, 0.99, None));
+    for &(m, p, alt) in cells {
+        rows.push(row(m as usize, p, alt));
+        rows.push(row(m as usize, p, alt));
+        rows.push(row(BLANK, 0.99, None));
+    }
+    let mut a = Array2::zeros((rows.len(), N_CLASSES));
+    for (t, r) in rows.iter().enumerate() {
+        for (c, &p) in r.iter().enumerate() {
+            a[[t, c]] = p.ln() as f32;
+        }
+    }
+    a
+}
+
+/// Cells of `text` as the stand-in code writes it, all read with
+/// probability 0.98.
+fn confident(text: &str) -> Vec<(u8, f64, Option<u8>)> {
+    StandIn
+        .encode(text)
+        .unwrap()
+        .into_iter()
+        .map(|c| (c.mask(), 0.98, None))
+        .collect()
+}
+
+fn mask_of(ch: char) -> u8 {
+    letter_mask(ch).unwrap()
+}
+
+#[test]
+fn rescoring_repairs_misread_words_and_keeps_numbers_and_names() {
+    let lexicon = Lexicon::builtin("en").unwrap();
+    // "the cat sat by dog 42 zog": the network reads the `a` of "cat" as
+    // `e` (0.6 against 0.4: the reading "cet" is itself a rare listed word),
+    // and the `o` of "dog" as `p` (dots 1234 for 135). "42" is a number and
+    // "zog" a name nobody listed, both read confidently.
+    let mut cells = confident("the ");
+    cells.push((mask_of('c'), 0.98, None));
+    cells.push((mask_of('e'), 0.6, Some(mask_of('a'))));
+    cells.push((mask_of('t'), 0.98, None));
+    cells.extend(confident(" sat by "));
+    cells.push((mask_of('d'), 0.98, None));
+    cells.push((mask_of('p'), 0.7, Some(mask_of('o'))));
+    cells.push((mask_of('g'), 0.98, None));
+    cells.extend(confident(" 42 zog"));
+    let lp = frames_for(&cells);
+
+    let plain = Decoder::new(&StandIn, BeamParams::default()).unwrap();
+    let raw = plain.decode(lp.view()).unwrap();
+    assert_eq!(raw.text, "the cet sat by dpg 42 zog");
+
+    let decoder = Decoder::new(&StandIn, BeamParams::default())
+        .unwrap()
+        .with_lexicon(&lexicon, RescoreWeights::default())
+        .unwrap();
+    let fixed = decoder.decode(lp.view()).unwrap();
+    assert_eq!(fixed.text, "the cat sat by dog 42 zog");
+    let changed: Vec<(&str, &str)> = fixed
+        .words
+        .iter()
+        .filter(|w| w.raw != w.chosen)
+        .map(|w| (w.raw.as_str(), w.chosen.as_str()))
+        .collect();
+    assert_eq!(changed, vec![("cet", "cat"), ("dpg", "dog")]);
+    // "42" has no letters: it is not even a rescoring slot.
+    assert!(fixed.words.iter().all(|w| w.raw != "42"));
+    // "zog" was considered (its neighbours in the lexicon, e.g. "dog",
+    // "log", were scored) and kept.
+    let zog = fixed.words.iter().find(|w| w.raw == "zog").unwrap();
+    assert!(zog.candidates.len() > 1);
+    assert_eq!(zog.chosen, "zog");
+}
+
+#[test]
+fn rescoring_keeps_capitals() {
+    let lexicon = Lexicon::builtin("en").unwrap();
+    let mut cells = vec![(CAPITAL, 0.98, None), (mask_of('c'), 0.98, None)];
+    cells.push((mask_of('e'), 0.6, Some(mask_of('a'))));
+    cells.push((mask_of('t'), 0.98, None));
+    let lp = frames_for(&cells);
+    let decoder = Decoder::new(&StandIn, BeamParams::default())
+        .unwrap()
+        .with_lexicon(&lexicon, RescoreWeights::default())
+        .unwrap();
+    assert_eq!(decoder.decode(lp.view()).unwrap().text, "Cat");
+}
+
+#[test]
+fn tuning_finds_weights_at_least_as_good_as_no_lexicon() {
+    use tactread::lexicon::{tune, TuneItem, WeightGrid};
+    let lexicon = Lexicon::builtin("en").unwrap();
+    let texts = ["the cat sat", "a red dog ran", "zog saw 12 owls"];
+    let mut arrays = Vec::new();
+    for (k, text) in texts.iter().enumerate() {
+        let mut cells = confident(text);
+        // Misread the second letter of the second word in the first two.
+        if k < 2 {
+            let space = cells.iter().position(|c| c.0 == 0).unwrap();
+            let (m, _, _) = cells[space + 2];
+            cells[space + 2] = (m ^ 0b01_0000, 0.6, Some(m)); // dot 5 flipped
+        }
+        arrays.push(frames_for(&cells));
+    }
+    let items: Vec<TuneItem> = arrays
+        .iter()
+        .zip(texts)
+        .map(|(a, t)| TuneItem {
+            log_probs: a.view(),
+            truth: t,
+        })
+        .collect();
+    let tuned = tune(
+        &items,
+        &StandIn,
+        &lexicon,
+        &BeamParams::default(),
+        &RescoreWeights::default(),
+        &WeightGrid::default(),
+    )
+    .unwrap();
+    // 11 words, 2 misread by the beam.
+    assert!(
+        (tuned.raw_word_accuracy - 9.0 / 11.0).abs() < 1e-9,
+        "{tuned:?}"
+    );
+    assert!((tuned.word_accuracy - 1.0).abs() < 1e-9, "{tuned:?}");
+    assert_eq!(tuned.tried, 6 * 4 * 3 * 5);
+    // With the lexicon weight at 0 nothing can beat the raw evidence, so the
+    // first grid point (lm 0) cannot be the winner.
+    assert!(tuned.weights.lm_weight > 0.0);
+}
+
+#[test]
+fn lexicon_file_round_trip_and_version_check() {
+    let dir = std::env::temp_dir().join(format!("tactread-lex-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("small.lex");
+    let entries = parse_word_list(
+        "Straße\t7\nhaus\t3\nhaus\t1\n",
+        std::path::Path::new("w.txt"),
+    )
+    .unwrap();
+    let lex = Lexicon::from_entries(&entries, "de").unwrap();
+    lex.save(&path).unwrap();
+    let back = Lexicon::load(&path).unwrap();
+    assert_eq!(
+        back.words(),
+        vec![("haus".to_string(), 4), ("straße".to_string(), 7)]
+    );
+    assert_eq!(back.lang(), "de");
+    // A file written by a future version is refused with a format error.
+    let mut bytes = std::fs::read(&path).unwrap();
+    bytes[16..20].copy_from_slice(&99u32.to_le_bytes());
+    std::fs::write(&path, &bytes).unwrap();
+    let err = Lexicon::load(&path).unwrap_err();
+    assert!(matches!(err, Error::Format { .. }), "{err}");
+    assert_eq!(err.exit_code(), 3);
+    assert!(err.to_string().contains("version 99"), "{err}");
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn builtin_lexicons_load_for_every_language() {
+    for lang in tactread::lexicon::BUILTIN_LANGS {
+        let lex = Lexicon::builtin(lang).unwrap();
+        assert!(lex.len() > 30_000, "{lang}: {}", lex.len());
+        assert_eq!(lex.lang(), lang);
+    }
+    // Everyday words of each language are listed (common practice).
+    let en = Lexicon::builtin("en").unwrap();
+    assert!(en.count("house").is_some());
+    let de = Lexicon::builtin("de").unwrap();
+    // wordfreq case-folds German ß to "ss" (its tokenizer does), so the
+    // list holds "strasse" and no word with ß: see lexicons/WORDLISTS.md.
+    assert!(de.count("strasse").is_some() && de.count("über").is_some());
+    assert!(de.count("straße").is_none());
+    let fr = Lexicon::builtin("fr").unwrap();
+    assert!(fr.count("été").is_some() && fr.count("français").is_some());
+    let es = Lexicon::builtin("es").unwrap();
+    assert!(es.count("año").is_some() && es.count("también").is_some());
+    assert!(Lexicon::builtin("xx").is_err());
+}

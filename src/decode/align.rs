@@ -38,7 +38,6 @@ fn may_skip(cells: &[Cell], s: usize) -> bool {
 /// `ln P(cells | frames[from..to])` under CTC: the sum over every alignment
 /// of the cells with the frames of the span. `-inf` when no alignment exists
 /// (too few frames) or every alignment has probability 0.
-#[allow(dead_code)] // used by word rescoring (next commit)
 pub(crate) fn span_log_likelihood(frames: &Pruned, from: usize, to: usize, cells: &[Cell]) -> f64 {
     let n_s = 2 * cells.len() + 1;
     if to <= from {

@@ -56,6 +56,7 @@ mod search;
 pub use frames::{BLANK, N_CLASSES};
 pub use search::BeamParams;
 
+pub(crate) use align::span_log_likelihood;
 pub(crate) use frames::Pruned;
 
 use crate::{Cell, Result};
@@ -78,15 +79,28 @@ pub trait CodeReader: Clone {
     fn finish(self) -> String;
 }
 
-/// What word rescoring needs from a braille code: a reader, and the cells
-/// that write a text.
+/// What the decoder and word rescoring need from a braille code: a reader,
+/// and the cells that write a text.
 pub trait BrailleCode {
     /// The code's reader.
-    type Reader: CodeReader;
+    type Reader<'a>: CodeReader
+    where
+        Self: 'a;
     /// A reader in its initial state.
-    fn reader(&self) -> Self::Reader;
+    fn reader(&self) -> Self::Reader<'_>;
     /// The cells that write `text`, or [`crate::Error::Unencodable`].
     fn encode(&self, text: &str) -> Result<Vec<Cell>>;
+}
+
+/// The text a fresh reader of `code` makes of `cells`.
+pub(crate) fn read_cells<C: BrailleCode>(code: &C, cells: &[Cell]) -> String {
+    let mut r = code.reader();
+    let mut out = String::new();
+    for &c in cells {
+        out.push_str(&r.push(c));
+    }
+    out.push_str(&r.finish());
+    out
 }
 
 /// One of the N best cell sequences of [`beam_search`].
@@ -117,8 +131,9 @@ pub struct TextHypothesis {
 pub struct CellEvidence {
     /// The cell read.
     pub cell: Cell,
-    /// The text this cell produced with the code's reader (empty for an
-    /// indicator, and always empty from [`cell_evidence`]).
+    /// The text the code's reader gave out when this cell was read (empty
+    /// for an indicator, or while the reader waits to see whether a sign of
+    /// several cells follows; always empty from [`cell_evidence`]).
     pub text: String,
     /// `q(cell)`: the probability of the pattern read.
     pub prob: f64,
@@ -223,6 +238,18 @@ fn unalignable(n_cells: usize, n_frames: usize) -> crate::Error {
         got: format!("{n_cells} cells that no alignment with {n_frames} frames can produce"),
         hint: "check that the cells belong to this recording".into(),
     }
+}
+
+/// Check `log_probs` and keep only its probabilities (no candidate lists).
+pub(crate) fn checked_probabilities(log_probs: &ArrayView2<f32>) -> Result<Pruned> {
+    frames::check(log_probs)?;
+    Ok(frames::prune(log_probs, 1.0, 1, 0.0))
+}
+
+/// Check `log_probs` and prune its frames for a search with `params`.
+pub(crate) fn checked_pruned(log_probs: &ArrayView2<f32>, params: &BeamParams) -> Result<Pruned> {
+    frames::check(log_probs)?;
+    Ok(prune(log_probs, params))
 }
 
 fn prune(log_probs: &ArrayView2<f32>, params: &BeamParams) -> Pruned {
@@ -367,4 +394,82 @@ pub(crate) fn read_pruned<R: CodeReader>(
         confidence,
         log_likelihood,
     })
+}
+
+/// Everything [`Decoder::decode`] gives.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Decoded {
+    /// The final text: the best reading, with words rescored when the
+    /// decoder has a lexicon.
+    pub text: String,
+    /// The beam's reading (ranked texts, per-cell and per-character
+    /// evidence) before rescoring.
+    pub reading: Reading,
+    /// What rescoring did with each word (empty without a lexicon).
+    pub words: Vec<crate::lexicon::WordChoice>,
+}
+
+/// A ready decoder: a braille code, beam settings and optionally a lexicon
+/// with rescoring weights, all checked when built.
+///
+/// ```no_run
+/// # fn demo<C: tactread::decode::BrailleCode>(code: &C, lp: ndarray::ArrayView2<f32>) -> tactread::Result<()> {
+/// use tactread::decode::{BeamParams, Decoder};
+/// use tactread::lexicon::{Lexicon, RescoreWeights};
+/// let lexicon = Lexicon::builtin("en")?;
+/// let decoder = Decoder::new(code, BeamParams::default())?
+///     .with_lexicon(&lexicon, RescoreWeights::default())?;
+/// println!("{}", decoder.decode(lp)?.text);
+/// # Ok(()) }
+/// ```
+#[derive(Debug)]
+pub struct Decoder<'a, C: BrailleCode> {
+    code: &'a C,
+    beam: BeamParams,
+    lexicon: Option<(&'a crate::lexicon::Lexicon, crate::lexicon::RescoreWeights)>,
+}
+
+impl<'a, C: BrailleCode> Decoder<'a, C> {
+    /// A decoder without a lexicon; fails on bad beam settings.
+    pub fn new(code: &'a C, beam: BeamParams) -> Result<Self> {
+        beam.check()?;
+        Ok(Decoder {
+            code,
+            beam,
+            lexicon: None,
+        })
+    }
+
+    /// The same decoder, rescoring words with `lexicon` and `weights`.
+    pub fn with_lexicon(
+        mut self,
+        lexicon: &'a crate::lexicon::Lexicon,
+        weights: crate::lexicon::RescoreWeights,
+    ) -> Result<Self> {
+        weights.check()?;
+        self.lexicon = Some((lexicon, weights));
+        Ok(self)
+    }
+
+    /// Decode one recording's network output, `[n_frames, 65]`.
+    pub fn decode(&self, log_probs: ArrayView2<f32>) -> Result<Decoded> {
+        let pruned = checked_pruned(&log_probs, &self.beam)?;
+        let reading = read_pruned(&pruned, self.code.reader(), &self.beam)?;
+        match &self.lexicon {
+            None => Ok(Decoded {
+                text: reading.text.clone(),
+                reading,
+                words: Vec::new(),
+            }),
+            Some((lexicon, weights)) => {
+                let r =
+                    crate::lexicon::rescore_pruned(&pruned, &reading, self.code, lexicon, weights);
+                Ok(Decoded {
+                    text: r.text,
+                    reading,
+                    words: r.words,
+                })
+            }
+        }
+    }
 }
