@@ -35,5 +35,5 @@ mod error;
 pub mod lexicon;
 pub mod recording;
 
-pub use braille::{cells_to_unicode, Cell};
+pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};

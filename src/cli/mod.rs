@@ -5,6 +5,7 @@
 use clap::{Parser, Subcommand};
 use tactread::Result;
 
+mod cells;
 mod demo;
 mod lexicon;
 
@@ -22,6 +23,8 @@ enum Command {
     Demo(demo::Args),
     /// Build lexicon files from word lists and look into them.
     Lexicon(lexicon::Args),
+    /// Write text as braille cells, or read braille cells back as text.
+    Cells(cells::Args),
 }
 
 /// Run the parsed command line.
@@ -29,5 +32,6 @@ pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
         Command::Lexicon(args) => lexicon::run(args),
+        Command::Cells(args) => cells::run(args),
     }
 }
