@@ -18,6 +18,8 @@
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
 //! | GRU network, output head, CTC loss, Adam | [`net`] |
+//! | beam search, character hypotheses | [`decode`] |
+//! | word lists, fst lexicons, word rescoring | [`lexicon`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -29,9 +31,11 @@
 #![deny(missing_docs)]
 
 pub mod braille;
+pub mod decode;
 mod error;
 pub mod metrics;
 pub mod net;
+pub mod lexicon;
 pub mod recording;
 pub mod report;
 

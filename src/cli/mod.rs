@@ -7,6 +7,7 @@ use tactread::Result;
 
 mod cells;
 mod demo;
+mod lexicon;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -20,6 +21,8 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Build lexicon files from word lists and look into them.
+    Lexicon(lexicon::Args),
     /// Write text as braille cells, or read braille cells back as text.
     Cells(cells::Args),
 }
@@ -28,6 +31,7 @@ enum Command {
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
     }
 }
