@@ -33,9 +33,9 @@
 pub mod braille;
 pub mod decode;
 mod error;
+pub mod lexicon;
 pub mod metrics;
 pub mod net;
-pub mod lexicon;
 pub mod recording;
 pub mod report;
 
