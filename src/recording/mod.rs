@@ -29,6 +29,8 @@
 //! ```
 
 mod csv_frames;
+#[doc(hidden)]
+pub mod fuzzing;
 mod manifest;
 mod npy_frames;
 mod save;
