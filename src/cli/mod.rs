@@ -6,6 +6,7 @@ use clap::{Parser, Subcommand};
 use tactread::Result;
 
 mod demo;
+mod inspect;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -19,11 +20,14 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Check recordings against the format and summarise them.
+    Inspect(inspect::Args),
 }
 
 /// Run the parsed command line.
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Inspect(args) => inspect::run(args),
     }
 }
