@@ -30,6 +30,8 @@
 
 mod csv_frames;
 mod manifest;
+#[cfg(test)]
+mod no_panic_tests;
 mod npy_frames;
 mod save;
 mod stream;
