@@ -53,6 +53,25 @@ fn tea_jar_values() -> (Vec<f64>, Vec<f64>, Array2<f32>) {
 }
 
 #[test]
+fn manifest_new_saves_and_loads() {
+    let dir = scratch("manifest-new");
+    let rec = Recording {
+        manifest: Manifest {
+            text: Some("go".to_string()),
+            ..Manifest::new(SensorInfo::new(2, 250.0))
+        },
+        time_s: vec![0.0, 0.004],
+        position_mm: None,
+        frames: ndarray::arr2(&[[1.0f32, 2.0], [3.0, 4.0]]),
+    };
+    rec.save(&dir.join("go.json"), FramesKind::Csv).unwrap();
+    let back = Recording::load(&dir.join("go.json")).unwrap();
+    assert_eq!(back.manifest.sensor.units, "arbitrary");
+    assert_eq!(back.manifest.frames, "go.csv");
+    assert_eq!(back.frames, rec.frames);
+}
+
+#[test]
 fn version_1_csv_example_keeps_loading() {
     let rec = Recording::load(&compat("v1/tea-jar.json")).unwrap();
     let (time, pos, frames) = tea_jar_values();
