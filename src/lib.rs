@@ -17,6 +17,7 @@
 //! | --- | --- |
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
+//! | simulated recordings from text | [`simulate`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -30,6 +31,7 @@
 pub mod braille;
 mod error;
 pub mod recording;
+pub mod simulate;
 
 pub use braille::{cells_to_unicode, Cell};
 pub use error::{Error, Location, Result};
