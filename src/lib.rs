@@ -33,5 +33,5 @@ mod error;
 pub mod recording;
 pub mod simulate;
 
-pub use braille::{cells_to_unicode, Cell};
+pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};
