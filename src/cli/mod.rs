@@ -7,6 +7,7 @@ use tactread::Result;
 
 mod cells;
 mod demo;
+mod simulate;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -22,6 +23,8 @@ enum Command {
     Demo(demo::Args),
     /// Write text as braille cells, or read braille cells back as text.
     Cells(cells::Args),
+    /// Simulate tactile recordings of braille text, one or a whole dataset.
+    Simulate(Box<simulate::Args>),
 }
 
 /// Run the parsed command line.
@@ -29,5 +32,6 @@ pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
         Command::Cells(args) => cells::run(args),
+        Command::Simulate(args) => simulate::run(*args),
     }
 }

@@ -191,6 +191,26 @@ mod tests {
     }
 
     #[test]
+    fn every_line_is_encodable_and_reads_back() {
+        let mut failures = Vec::new();
+        for lang in CORPUS_LANGS {
+            let table = crate::braille::CodeTable::builtin(lang).unwrap();
+            for (k, line) in corpus_lines(lang).unwrap().iter().enumerate() {
+                match table.encode(line) {
+                    Ok(cells) => assert_eq!(table.decode(&cells).text, *line, "{lang} line {k}"),
+                    Err(e) => failures.push(format!("{lang} line {k} {line:?}: {e}")),
+                }
+            }
+        }
+        assert!(
+            failures.is_empty(),
+            "{} lines fail, e.g.\n{}",
+            failures.len(),
+            failures[..failures.len().min(12)].join("\n")
+        );
+    }
+
+    #[test]
     fn corpus_is_stable() {
         assert_eq!(corpus_lines("fr").unwrap(), corpus_lines("fr").unwrap());
         assert_ne!(

@@ -38,6 +38,7 @@
 //! ```
 
 mod corpus;
+mod dataset;
 mod faults;
 mod geometry;
 mod kinematics;
@@ -45,6 +46,7 @@ mod sensor;
 mod surface;
 
 pub use corpus::{corpus_lines, CORPUS_LANGS};
+pub use dataset::{write_dataset, DatasetLine, DatasetPlan};
 pub use geometry::{render_height_map, DomeProfile, HeightMap, PageGeometry, PAGE_PRESETS};
 pub use kinematics::{Encoder, FaultLevel, Kinematics, Preset, PRESET_NAMES};
 pub use sensor::{
@@ -52,7 +54,7 @@ pub use sensor::{
     DEFAULT_SENSOR, SENSOR_FORMAT, SENSOR_VERSION,
 };
 
-use crate::braille::{cells_to_unicode, Cell};
+use crate::braille::{cells_to_unicode, Cell, CodeTable};
 use crate::error::{Error, Result};
 use crate::recording::{Manifest, Recording, SensorInfo, MANIFEST_FORMAT, MANIFEST_VERSION};
 use ndarray::Array2;
@@ -116,6 +118,20 @@ pub struct Simulator {
     taxels: Vec<[f64; 2]>,
     lift: Vec<f64>,
     neighbours: Vec<Vec<usize>>,
+}
+
+/// Encode one line of text for embossing: fails on text that is empty or
+/// only spaces, and on a character the code cannot write.
+pub fn encode_line(text: &str, table: &CodeTable) -> Result<Vec<Cell>> {
+    if text.trim().is_empty() {
+        return Err(Error::config(
+            "text",
+            format!(
+                "{text:?} is empty or only spaces: there is nothing to emboss; give at least one character"
+            ),
+        ));
+    }
+    table.encode(text)
 }
 
 /// The seed of recording `index` of a dataset made with `dataset_seed`
@@ -200,11 +216,37 @@ impl Simulator {
     /// simulation (see `docs/simulator.md`). The manifest's `text` and
     /// `lang` are left empty (the caller knows them; see
     /// [`Simulator::simulate_text`]) and `frames` names `frames.csv` until
-    /// the recording is saved.
+    /// [`Recording::save`] sets it.
     ///
     /// Fails on an empty line and on a line that would exceed
     /// [`MAX_SAMPLES`].
     pub fn simulate(&self, cells: &[Cell], seed: u64) -> Result<Recording> {
+        self.simulate_with(cells, &self.config.kinematics, seed)
+    }
+
+    /// Simulate `text` written with `table` (its language pack's code):
+    /// like [`Simulator::simulate`], with the manifest's `text` and `lang`
+    /// filled in. Fails on text that is empty or only spaces, and with
+    /// [`Error::Unencodable`] naming the first character the code cannot
+    /// write.
+    pub fn simulate_text(&self, text: &str, table: &CodeTable, seed: u64) -> Result<Recording> {
+        let cells = encode_line(text, table)?;
+        let mut rec = self.simulate(&cells, seed)?;
+        rec.manifest.text = Some(text.to_string());
+        rec.manifest.lang = Some(table.lang().to_string());
+        Ok(rec)
+    }
+
+    /// Like [`Simulator::simulate`] with other kinematics than the
+    /// configuration's (checked first): for datasets whose recordings vary
+    /// in speed or force.
+    pub fn simulate_with(
+        &self,
+        cells: &[Cell],
+        kinematics: &Kinematics,
+        seed: u64,
+    ) -> Result<Recording> {
+        kinematics.check()?;
         if cells.is_empty() {
             return Err(Error::config(
                 "text",
@@ -219,7 +261,7 @@ impl Simulator {
 
         let max_frames = (MAX_SAMPLES / n_taxels).max(1);
         let path = kinematics::sample_path(
-            &cfg.kinematics,
+            kinematics,
             x_start,
             x_end,
             rate,
@@ -257,7 +299,7 @@ impl Simulator {
 
         let time_s: Vec<f64> = (0..n_frames).map(|i| i as f64 / rate).collect();
         let duration = n_frames as f64 / rate;
-        let k = &cfg.kinematics;
+        let k = kinematics;
         let mut tags = BTreeMap::new();
         tags.insert(
             "simulator".into(),
@@ -296,6 +338,7 @@ impl Simulator {
                 sample_rate_hz: rate,
                 units: sensor.units().to_string(),
             },
+            npy_columns: None,
             text: None,
             lang: None,
             notes: Some(format!(
