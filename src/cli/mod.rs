@@ -9,6 +9,7 @@ mod cells;
 mod demo;
 mod inspect;
 mod lexicon;
+mod simulate;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -28,6 +29,8 @@ enum Command {
     Cells(cells::Args),
     /// Check recordings against the format and summarise them.
     Inspect(inspect::Args),
+    /// Simulate tactile recordings of braille text, one or a whole dataset.
+    Simulate(Box<simulate::Args>),
 }
 
 /// Run the parsed command line.
@@ -37,5 +40,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
         Command::Inspect(args) => inspect::run(args),
+        Command::Simulate(args) => simulate::run(*args),
     }
 }

@@ -29,6 +29,7 @@
 //! ```
 
 mod csv_frames;
+mod dataset;
 mod manifest;
 #[cfg(test)]
 mod no_panic_tests;
@@ -38,6 +39,9 @@ mod stream;
 mod values;
 
 pub use csv_frames::{CsvFrameReader, Frame};
+pub use dataset::{
+    Dataset, DatasetEntry, DatasetIndex, Split, DATASET_FORMAT, DATASET_INDEX, DATASET_VERSION,
+};
 pub use save::{FramesKind, SaveOptions};
 pub use stream::{FrameChunk, RecordingStream};
 
