@@ -5,6 +5,7 @@
 use clap::{Parser, Subcommand};
 use tactread::Result;
 
+mod compare;
 mod demo;
 
 /// Read braille by touch from tactile sensor recordings.
@@ -19,11 +20,14 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Compare two metric files of the same test set, with paired bootstrap intervals.
+    Compare(compare::Args),
 }
 
 /// Run the parsed command line.
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Compare(args) => compare::run(args),
     }
 }
