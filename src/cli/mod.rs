@@ -5,8 +5,10 @@
 use clap::{Parser, Subcommand};
 use tactread::Result;
 
+mod cells;
 mod compare;
 mod demo;
+mod lexicon;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -20,6 +22,10 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Build lexicon files from word lists and look into them.
+    Lexicon(lexicon::Args),
+    /// Write text as braille cells, or read braille cells back as text.
+    Cells(cells::Args),
     /// Compare two metric files of the same test set, with paired bootstrap intervals.
     Compare(compare::Args),
 }
@@ -28,6 +34,8 @@ enum Command {
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Lexicon(args) => lexicon::run(args),
+        Command::Cells(args) => cells::run(args),
         Command::Compare(args) => compare::run(args),
     }
 }

@@ -467,6 +467,7 @@ mod tests {
                 format: MANIFEST_FORMAT.into(),
                 version: MANIFEST_VERSION,
                 frames: "f.csv".into(),
+                npy_columns: None,
                 sensor: SensorInfo {
                     name: None,
                     taxels,

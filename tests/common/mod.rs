@@ -203,6 +203,7 @@ pub fn toy_recording(text: &str) -> Recording {
             format: MANIFEST_FORMAT.into(),
             version: MANIFEST_VERSION,
             frames: "frames.csv".into(),
+            npy_columns: None,
             sensor: SensorInfo {
                 name: Some("grid12".into()),
                 taxels,
