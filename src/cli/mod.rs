@@ -9,6 +9,7 @@ mod cells;
 mod compare;
 mod demo;
 mod lexicon;
+mod show;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -28,6 +29,8 @@ enum Command {
     Cells(cells::Args),
     /// Compare two metric files of the same test set, with paired bootstrap intervals.
     Compare(compare::Args),
+    /// Draw one recording's taxel signals with its ground-truth cells as an SVG file.
+    Show(show::Args),
 }
 
 /// Run the parsed command line.
@@ -37,5 +40,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
         Command::Compare(args) => compare::run(args),
+        Command::Show(args) => show::run(args),
     }
 }

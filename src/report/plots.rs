@@ -16,15 +16,15 @@ pub(crate) type DrawResult<T> = std::result::Result<T, Box<dyn std::error::Error
 const FONT: &str = "sans-serif";
 
 fn label_style() -> TextStyle<'static> {
-    (FONT, 13).into_font().color(&INK)
+    (FONT, 15).into_font().color(&INK)
 }
 
 fn desc_style() -> TextStyle<'static> {
-    (FONT, 13).into_font().color(&MUTED)
+    (FONT, 15).into_font().color(&MUTED)
 }
 
 fn caption_style() -> TextStyle<'static> {
-    (FONT, 17).into_font().color(&INK)
+    (FONT, 19).into_font().color(&INK)
 }
 
 /// A named series of headline estimates (one per hypothesis set).
@@ -115,7 +115,7 @@ pub(crate) fn headline_svg(series: &[HeadlineSeries]) -> DrawResult<String> {
                 Text::new(
                     format!("{:.1}", e.value * 100.0),
                     (e.high * 100.0, *y),
-                    (FONT, 12).into_font().color(&color),
+                    (FONT, 14).into_font().color(&color),
                 )
             }))?;
         }
@@ -421,7 +421,7 @@ pub(crate) fn breakdown_svg(series: &[BreakdownSeries], axis: &str) -> DrawResul
                         Text::new(
                             format!("n={n}"),
                             (*x, y0 + (100.0 - y0) * 0.04),
-                            (FONT, 11).into_font().color(&MUTED),
+                            (FONT, 13).into_font().color(&MUTED),
                         )
                     }))?;
                 }

@@ -207,11 +207,11 @@ fn draw_view(view: &RecordingView) -> DrawResult<String> {
     {
         let root = SVGBackend::with_string(&mut buf, (width, height)).into_drawing_area();
         root.fill(&PAPER)?;
-        let root = root.titled(&view.title, ("sans-serif", 17).into_font().color(&INK))?;
+        let root = root.titled(&view.title, ("sans-serif", 20).into_font().color(&INK))?;
         let (sum_area, rest) = root.split_vertically(140);
         let (heat_area, cell_area) = rest.split_vertically(heat_h);
-        let label = ("sans-serif", 12).into_font().color(&INK);
-        let desc = ("sans-serif", 12).into_font().color(&MUTED);
+        let label = ("sans-serif", 15).into_font().color(&INK);
+        let desc = ("sans-serif", 15).into_font().color(&MUTED);
 
         // Panel 1: pressure summed over taxels.
         let sums: Vec<(f64, f64)> = (0..n_frames)
@@ -433,7 +433,7 @@ fn draw_view(view: &RecordingView) -> DrawResult<String> {
                         Text::new(
                             pc.cell.dot_string(),
                             (pc.at - dx * 1.4, base + 0.24),
-                            ("sans-serif", 10).into_font().color(&MUTED),
+                            ("sans-serif", 13).into_font().color(&MUTED),
                         )
                         .into_dyn(),
                     );
