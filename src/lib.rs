@@ -30,8 +30,10 @@
 
 pub mod braille;
 mod error;
+pub mod metrics;
 pub mod net;
 pub mod recording;
+pub mod report;
 
-pub use braille::{cells_to_unicode, Cell};
+pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};

@@ -5,6 +5,7 @@
 use clap::{Parser, Subcommand};
 use tactread::Result;
 
+mod cells;
 mod demo;
 
 /// Read braille by touch from tactile sensor recordings.
@@ -19,11 +20,14 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Write text as braille cells, or read braille cells back as text.
+    Cells(cells::Args),
 }
 
 /// Run the parsed command line.
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Cells(args) => cells::run(args),
     }
 }

@@ -2,7 +2,42 @@
 //! with the manifest that describes the sensor and the ground truth.
 //!
 //! A recording on disk is a JSON manifest plus one frames file (CSV with a
-//! header, or `.npy`). See `docs/recording-format.md` for the contract.
+//! header, or `.npy`). See `docs/recording-format.md` for the contract: the
+//! columns, units, version policy and every check with the error it gives.
+//!
+//! - [`Recording::load`] reads a recording whole; [`Recording::save`] writes
+//!   one atomically.
+//! - [`RecordingStream`] reads a CSV or `.npy` recording in chunks of
+//!   bounded size.
+//! - [`CsvFrameReader`] reads CSV frames row by row from any reader (stdin).
+//!
+//! ```
+//! use tactread::recording::{CsvFrameReader, Frame};
+//! let rows = "time_s,position_mm,taxel_0,taxel_1\n0.00,0.0,0.5,1\n0.02,0.4,0.75,2\n";
+//! let frames: Vec<Frame> = CsvFrameReader::new(rows.as_bytes(), "<stdin>", 2)
+//!     .unwrap()
+//!     .collect::<tactread::Result<_>>()
+//!     .unwrap();
+//! assert_eq!(frames[1].position_mm, Some(0.4));
+//!
+//! let bad = "time_s,taxel_0\n0.0,1\n0.1,2\n0.2,NaN\n";
+//! let err = CsvFrameReader::new(bad.as_bytes(), "bad.csv", 1)
+//!     .unwrap()
+//!     .collect::<tactread::Result<Vec<Frame>>>()
+//!     .unwrap_err();
+//! assert!(err.to_string().starts_with("bad.csv line 4, field `taxel_0`: data row 3: NaN"));
+//! ```
+
+mod csv_frames;
+mod manifest;
+mod npy_frames;
+mod save;
+mod stream;
+mod values;
+
+pub use csv_frames::{CsvFrameReader, Frame};
+pub use save::{FramesKind, SaveOptions};
+pub use stream::{FrameChunk, RecordingStream};
 
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
@@ -15,6 +50,7 @@ pub const MANIFEST_VERSION: u32 = 1;
 
 /// What the manifest says about the sensor.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct SensorInfo {
     /// Free name of the sensor, e.g. "hex24".
     #[serde(default, skip_serializing_if = "Option::is_none")]
@@ -37,6 +73,7 @@ fn default_units() -> String {
 
 /// The manifest of one recording.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Manifest {
     /// Always [`MANIFEST_FORMAT`].
     pub format: String,
@@ -46,6 +83,10 @@ pub struct Manifest {
     pub frames: String,
     /// The sensor that made the recording.
     pub sensor: SensorInfo,
+    /// Column layout of an `.npy` frames file; required for `.npy` frames,
+    /// absent for CSV frames (whose header names the columns).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub npy_columns: Option<NpyColumns>,
     /// Ground-truth text, when known.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub text: Option<String>,
@@ -58,6 +99,20 @@ pub struct Manifest {
     /// Machine-readable extras, e.g. `"speed_mm_s": 20.0` from the simulator.
     #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
     pub tags: BTreeMap<String, serde_json::Value>,
+}
+
+/// Which leading columns an `.npy` frames file holds before its taxel
+/// columns. The array is `[n_frames, n_columns]` with columns in the order
+/// `time_s` (when [`time_s`](Self::time_s)), `position_mm` (when
+/// [`position_mm`](Self::position_mm)), then one column per taxel.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NpyColumns {
+    /// Column 0 holds the frame time in seconds. When `false`, frame `i`
+    /// is at `i / sensor.sample_rate_hz` seconds.
+    pub time_s: bool,
+    /// The next column holds the position along the line in mm.
+    pub position_mm: bool,
 }
 
 /// A recording loaded whole.
