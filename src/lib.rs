@@ -17,6 +17,7 @@
 //! | --- | --- |
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
+//! | baseline, scale, resampling by position or time | [`prep`] |
 //! | GRU network, output head, CTC loss, Adam | [`net`] |
 //!
 //! ## Example: text to cells and back
@@ -32,6 +33,7 @@ pub mod braille;
 mod error;
 pub mod metrics;
 pub mod net;
+pub mod prep;
 pub mod recording;
 pub mod report;
 

@@ -204,7 +204,6 @@ impl GruStack {
 
     /// Checks that the parameter arrays agree with the configuration (for
     /// stacks read from a file).
-    #[allow(dead_code)] // used by the model file
     pub(crate) fn check_shapes(&self) -> std::result::Result<(), String> {
         let c = &self.config;
         if self.cells.len() != c.layers * c.directions() {

@@ -94,7 +94,6 @@ impl Network {
 
     /// Checks parameter shapes against the configuration (for networks
     /// read from a file); the message says what disagrees.
-    #[allow(dead_code)] // used by the model file
     pub(crate) fn check_shapes(&self) -> std::result::Result<(), String> {
         self.gru.check_shapes()?;
         let n = self.gru.config().outputs();
