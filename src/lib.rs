@@ -19,6 +19,7 @@
 //! | frames files and manifests | [`recording`] |
 //! | baseline, scale, resampling by position or time | [`prep`] |
 //! | GRU network, output head, CTC loss, Adam | [`net`] |
+//! | batching, training loop, checkpoints | [`train`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -36,6 +37,7 @@ pub mod net;
 pub mod prep;
 pub mod recording;
 pub mod report;
+pub mod train;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};
