@@ -704,11 +704,15 @@ mod tests {
 
     #[test]
     fn bad_options_are_config_errors() {
-        let mut c = TrainConfig::default();
-        c.batch = 0;
+        let c = TrainConfig {
+            batch: 0,
+            ..TrainConfig::default()
+        };
         assert!(matches!(c.check(), Err(Error::Config { .. })));
-        let mut c = TrainConfig::default();
-        c.lr = -1.0;
+        let c = TrainConfig {
+            lr: -1.0,
+            ..TrainConfig::default()
+        };
         assert!(matches!(c.check(), Err(Error::Config { .. })));
     }
 }
