@@ -135,12 +135,13 @@ pub fn encode_line(text: &str, table: &CodeTable) -> Result<Vec<Cell>> {
 }
 
 /// The seed of recording `index` of a dataset made with `dataset_seed`
-/// (SplitMix64 finaliser over both; Steele, Lea and Flood 2014).
+/// (SplitMix64 finaliser over both; Steele, Lea and Flood 2014), cut to 53
+/// bits so that every JSON reader holds it exactly.
 pub fn recording_seed(dataset_seed: u64, index: u64) -> u64 {
     let mut z = dataset_seed ^ index.wrapping_add(1).wrapping_mul(0x9E37_79B9_7F4A_7C15);
     z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
     z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
+    (z ^ (z >> 31)) >> 11
 }
 
 const STREAM_PATH: u64 = 1;
@@ -342,7 +343,7 @@ impl Simulator {
             text: None,
             lang: None,
             notes: Some(format!(
-                "simulated: preset {}, page {}, sensor {}, {} mm/s, {} N; position is the sensor's middle along the line, 0 at the first cell's left dot column",
+                "simulated: preset {}, page {}, sensor {}, {:.1} mm/s, {} N; position is the sensor's middle along the line, 0 at the first cell's left dot column",
                 cfg.preset.name(),
                 cfg.page.name,
                 sensor.name,
