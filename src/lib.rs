@@ -18,6 +18,9 @@
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
 //! | simulated recordings from text | [`simulate`] |
+//! | GRU network, output head, CTC loss, Adam | [`net`] |
+//! | beam search, character hypotheses | [`decode`] |
+//! | word lists, fst lexicons, word rescoring | [`lexicon`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -29,8 +32,13 @@
 #![deny(missing_docs)]
 
 pub mod braille;
+pub mod decode;
 mod error;
+pub mod lexicon;
+pub mod metrics;
+pub mod net;
 pub mod recording;
+pub mod report;
 pub mod simulate;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};

@@ -7,6 +7,8 @@ use tactread::Result;
 
 mod cells;
 mod demo;
+mod inspect;
+mod lexicon;
 mod simulate;
 
 /// Read braille by touch from tactile sensor recordings.
@@ -21,8 +23,12 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Build lexicon files from word lists and look into them.
+    Lexicon(lexicon::Args),
     /// Write text as braille cells, or read braille cells back as text.
     Cells(cells::Args),
+    /// Check recordings against the format and summarise them.
+    Inspect(inspect::Args),
     /// Simulate tactile recordings of braille text, one or a whole dataset.
     Simulate(Box<simulate::Args>),
 }
@@ -31,7 +37,9 @@ enum Command {
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
+        Command::Inspect(args) => inspect::run(args),
         Command::Simulate(args) => simulate::run(*args),
     }
 }

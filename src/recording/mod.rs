@@ -31,6 +31,8 @@
 mod csv_frames;
 mod dataset;
 mod manifest;
+#[cfg(test)]
+mod no_panic_tests;
 mod npy_frames;
 mod save;
 mod stream;
@@ -71,6 +73,20 @@ pub struct SensorInfo {
     pub units: String,
 }
 
+impl SensorInfo {
+    /// A sensor with `taxels` taxels sampled at `sample_rate_hz`, without a
+    /// name or taxel positions, in `arbitrary` units.
+    pub fn new(taxels: usize, sample_rate_hz: f64) -> Self {
+        SensorInfo {
+            name: None,
+            taxels,
+            positions_mm: None,
+            sample_rate_hz,
+            units: default_units(),
+        }
+    }
+}
+
 fn default_units() -> String {
     "arbitrary".to_string()
 }
@@ -103,6 +119,26 @@ pub struct Manifest {
     /// Machine-readable extras, e.g. `"speed_mm_s": 20.0` from the simulator.
     #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
     pub tags: BTreeMap<String, serde_json::Value>,
+}
+
+impl Manifest {
+    /// A manifest of the current format and version for `sensor`, with no
+    /// ground truth, notes or tags. `frames` is left empty:
+    /// [`Recording::save`] fills it in. Building manifests with this (and
+    /// struct update syntax) keeps code compiling when fields are added.
+    pub fn new(sensor: SensorInfo) -> Self {
+        Manifest {
+            format: MANIFEST_FORMAT.to_string(),
+            version: MANIFEST_VERSION,
+            frames: String::new(),
+            sensor,
+            npy_columns: None,
+            text: None,
+            lang: None,
+            notes: None,
+            tags: BTreeMap::new(),
+        }
+    }
 }
 
 /// Which leading columns an `.npy` frames file holds before its taxel

@@ -56,7 +56,7 @@ pub use sensor::{
 
 use crate::braille::{cells_to_unicode, Cell, CodeTable};
 use crate::error::{Error, Result};
-use crate::recording::{Manifest, Recording, SensorInfo, MANIFEST_FORMAT, MANIFEST_VERSION};
+use crate::recording::{Manifest, Recording, SensorInfo};
 use ndarray::Array2;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -216,7 +216,7 @@ impl Simulator {
     /// in the sensor's units, and a manifest whose `tags` record the
     /// simulation (see `docs/simulator.md`). The manifest's `text` and
     /// `lang` are left empty (the caller knows them; see
-    /// [`Simulator::simulate_text`]) and `frames` names `frames.csv` until
+    /// [`Simulator::simulate_text`]) and `frames` is empty until
     /// [`Recording::save`] sets it.
     ///
     /// Fails on an empty line and on a line that would exceed
@@ -329,19 +329,12 @@ impl Simulator {
         );
         tags.insert("duration_s".into(), json!(duration));
         let manifest = Manifest {
-            format: MANIFEST_FORMAT.to_string(),
-            version: MANIFEST_VERSION,
-            frames: "frames.csv".to_string(),
             sensor: SensorInfo {
                 name: Some(sensor.name.clone()),
-                taxels: n_taxels,
                 positions_mm: Some(self.taxels.clone()),
-                sample_rate_hz: rate,
                 units: sensor.units().to_string(),
+                ..SensorInfo::new(n_taxels, rate)
             },
-            npy_columns: None,
-            text: None,
-            lang: None,
             notes: Some(format!(
                 "simulated: preset {}, page {}, sensor {}, {:.1} mm/s, {} N; position is the sensor's middle along the line, 0 at the first cell's left dot column",
                 cfg.preset.name(),
@@ -351,6 +344,7 @@ impl Simulator {
                 k.force_n
             )),
             tags,
+            ..Manifest::new(SensorInfo::new(n_taxels, rate))
         };
         Ok(Recording {
             manifest,
