@@ -658,3 +658,19 @@ fn demo_data_matches_its_command() {
     }
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// The word "dataset" can be embossed as the help says.
+#[test]
+fn cli_text_dataset_after_double_dash() {
+    let dir = temp_dir("word");
+    let o = tactread(
+        &[
+            "simulate", "--rate", "100", "--out", "x.json", "--", "dataset",
+        ],
+        &dir,
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let rec = Recording::load(&dir.join("x.json")).unwrap();
+    assert_eq!(rec.manifest.text.as_deref(), Some("dataset"));
+    let _ = std::fs::remove_dir_all(&dir);
+}
