@@ -17,10 +17,10 @@
 //! | --- | --- |
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
-//! | simulated recordings from text | [`simulate`] |
 //! | GRU network, output head, CTC loss, Adam | [`net`] |
 //! | beam search, character hypotheses | [`decode`] |
 //! | word lists, fst lexicons, word rescoring | [`lexicon`] |
+//! | simulated recordings from text | [`simulate`] |
 //!
 //! ## Example: text to cells and back
 //!

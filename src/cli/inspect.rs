@@ -8,6 +8,7 @@
 
 use clap::Args as ClapArgs;
 use serde_json::json;
+use std::io::Write;
 use std::path::PathBuf;
 use tactread::recording::{FramesKind, RecordingStream};
 use tactread::{Error, Result};
@@ -79,51 +80,58 @@ impl Summary {
         })
     }
 
-    fn print_text(&self) {
-        println!("{}", self.manifest.display());
+    fn write_text(&self, out: &mut impl Write) -> std::io::Result<()> {
         let kind = match self.kind {
             FramesKind::Csv => "CSV",
             FramesKind::Npy => "npy",
         };
-        println!(
-            "  frames       {} ({kind}, {})",
-            self.frames,
-            self.frames_file.display()
-        );
-        println!(
-            "  duration     {:.3} s ({:.3} .. {:.3} s)",
-            self.duration_s(),
-            self.first_time_s,
-            self.last_time_s
-        );
         let name = self
             .sensor_name
             .as_deref()
             .map_or(String::new(), |n| format!(", sensor {n}"));
-        println!(
-            "  taxels       {} (units {}{name})",
-            self.taxels, self.units
-        );
-        match self.measured_rate_hz() {
-            Some(m) => println!(
-                "  sample rate  {} Hz in the manifest, {m:.2} Hz measured",
+        let rate = match self.measured_rate_hz() {
+            Some(m) => format!(
+                "{} Hz in the manifest, {m:.2} Hz measured",
                 self.sample_rate_hz
             ),
-            None => println!("  sample rate  {} Hz in the manifest", self.sample_rate_hz),
-        }
-        match self.position_mm {
-            Some((lo, hi)) => println!("  position     {lo:.3} .. {hi:.3} mm"),
-            None => println!("  position     none (no position_mm column)"),
-        }
-        println!(
+            None => format!("{} Hz in the manifest", self.sample_rate_hz),
+        };
+        let position = match self.position_mm {
+            Some((lo, hi)) => format!("{lo:.3} .. {hi:.3} mm"),
+            None => "none (no position_mm column)".to_string(),
+        };
+        let text = match (&self.text, &self.lang) {
+            (Some(t), Some(l)) => format!("{t:?} ({l})"),
+            (Some(t), None) => format!("{t:?}"),
+            (None, _) => "none given".to_string(),
+        };
+        writeln!(out, "{}", self.manifest.display())?;
+        writeln!(
+            out,
+            "  frames       {} ({kind}, {})",
+            self.frames,
+            self.frames_file.display()
+        )?;
+        writeln!(
+            out,
+            "  duration     {:.3} s ({:.3} .. {:.3} s)",
+            self.duration_s(),
+            self.first_time_s,
+            self.last_time_s
+        )?;
+        writeln!(
+            out,
+            "  taxels       {} (units {}{name})",
+            self.taxels, self.units
+        )?;
+        writeln!(out, "  sample rate  {rate}")?;
+        writeln!(out, "  position     {position}")?;
+        writeln!(
+            out,
             "  values       {} .. {} {}",
             self.values.0, self.values.1, self.units
-        );
-        match (&self.text, &self.lang) {
-            (Some(t), Some(l)) => println!("  text         {t:?} ({l})"),
-            (Some(t), None) => println!("  text         {t:?}"),
-            (None, _) => println!("  text         none given"),
-        }
+        )?;
+        writeln!(out, "  text         {text}")
     }
 }
 
@@ -192,6 +200,8 @@ fn print_error(err: &Error) {
 
 /// Run `tactread inspect`.
 pub fn run(args: Args) -> Result<()> {
+    let stdout = std::io::stdout();
+    let mut out = stdout.lock();
     let mut last_error: Option<Error> = None;
     let mut json_out = Vec::new();
     for (i, path) in args.recordings.iter().enumerate() {
@@ -200,10 +210,12 @@ pub fn run(args: Args) -> Result<()> {
                 if args.json {
                     json_out.push(summary.to_json());
                 } else {
-                    if i > 0 {
-                        println!();
+                    let written = if i > 0 { writeln!(out) } else { Ok(()) }
+                        .and_then(|()| summary.write_text(&mut out))
+                        .and_then(|()| out.flush());
+                    if !stdout_ok(written)? {
+                        return Ok(());
                     }
-                    summary.print_text();
                 }
             }
             Err(err) => {
@@ -222,10 +234,23 @@ pub fn run(args: Args) -> Result<()> {
     }
     if args.json {
         let text = serde_json::to_string_pretty(&json_out).unwrap_or_else(|_| "[]".to_string());
-        println!("{text}");
+        if !stdout_ok(writeln!(out, "{text}").and_then(|()| out.flush()))? {
+            return Ok(());
+        }
     }
     match last_error {
         Some(err) => Err(err),
         None => Ok(()),
+    }
+}
+
+/// Whether writing to stdout worked; `Ok(false)` when the reader went away
+/// (e.g. `tactread inspect ... | head`), which ends the output quietly
+/// instead of panicking as `println!` would.
+fn stdout_ok(written: std::io::Result<()>) -> Result<bool> {
+    match written {
+        Ok(()) => Ok(true),
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(false),
+        Err(e) => Err(Error::io("cannot write", "<stdout>", e)),
     }
 }
