@@ -314,7 +314,8 @@ impl Simulator {
         tags.insert("speed_mm_s".into(), json!(k.speed_mm_s));
         tags.insert("force_n".into(), json!(k.force_n));
         tags.insert("dot_spacing_mm".into(), json!(cfg.page.dot_spacing_mm));
-        tags.insert("cell_spacing_mm".into(), json!(cfg.page.cell_spacing_mm));
+        tags.insert("cell_pitch_mm".into(), json!(cfg.page.cell_spacing_mm));
+        tags.insert("first_cell_mm".into(), json!(cfg.page.dot_spacing_mm / 2.0));
         tags.insert("dot_height_mm".into(), json!(cfg.page.dot_height_mm));
         tags.insert("lateral_offset_mm".into(), json!(path.offset_mm));
         tags.insert(
