@@ -10,8 +10,8 @@ mod compare;
 mod demo;
 mod inspect;
 mod lexicon;
-mod simulate;
 mod show;
+mod simulate;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
