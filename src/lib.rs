@@ -20,6 +20,7 @@
 //! | GRU network, output head, CTC loss, Adam | [`net`] |
 //! | beam search, character hypotheses | [`decode`] |
 //! | word lists, fst lexicons, word rescoring | [`lexicon`] |
+//! | simulated recordings from text | [`simulate`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -38,6 +39,7 @@ pub mod metrics;
 pub mod net;
 pub mod recording;
 pub mod report;
+pub mod simulate;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};
