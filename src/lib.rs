@@ -21,6 +21,8 @@
 //! | beam search, character hypotheses | [`decode`] |
 //! | word lists, fst lexicons, word rescoring | [`lexicon`] |
 //! | simulated recordings from text | [`simulate`] |
+//! | alignment, accuracies, calibration, bootstrap intervals, comparisons | [`metrics`] |
+//! | HTML report and recording view (SVG) | [`report`] |
 //!
 //! ## Example: text to cells and back
 //!
