@@ -23,6 +23,8 @@
 //! | word lists, fst lexicons, word rescoring | [`lexicon`] |
 //! | simulated recordings from text | [`simulate`] |
 //! | batching, training loop, checkpoints | [`train`] |
+//! | alignment, accuracies, calibration, bootstrap intervals, comparisons | [`metrics`] |
+//! | HTML report and recording view (SVG) | [`report`] |
 //!
 //! ## Example: text to cells and back
 //!
