@@ -6,8 +6,12 @@ use clap::{Parser, Subcommand};
 use tactread::Result;
 
 mod cells;
+mod compare;
 mod demo;
+mod inspect;
 mod lexicon;
+mod show;
+mod simulate;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -25,6 +29,14 @@ enum Command {
     Lexicon(lexicon::Args),
     /// Write text as braille cells, or read braille cells back as text.
     Cells(cells::Args),
+    /// Check recordings against the format and summarise them.
+    Inspect(inspect::Args),
+    /// Simulate tactile recordings of braille text, one or a whole dataset.
+    Simulate(Box<simulate::Args>),
+    /// Compare two metric files of the same test set, with paired bootstrap intervals.
+    Compare(compare::Args),
+    /// Draw one recording's taxel signals with its ground-truth cells as an SVG file.
+    Show(show::Args),
 }
 
 /// Run the parsed command line.
@@ -33,5 +45,9 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Demo(args) => demo::run(args),
         Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
+        Command::Inspect(args) => inspect::run(args),
+        Command::Simulate(args) => simulate::run(*args),
+        Command::Compare(args) => compare::run(args),
+        Command::Show(args) => show::run(args),
     }
 }

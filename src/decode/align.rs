@@ -105,10 +105,19 @@ pub(crate) struct CellPosterior {
     pub frames: (usize, usize),
 }
 
+/// Positions whose scaled forward value falls below this (relative to the
+/// frame's total 1) are dropped from the band: alignments that improbable
+/// cannot move a posterior or the likelihood by a visible amount.
+const BAND_FLOOR: f64 = 1e-40;
+
 /// Forward-backward over all frames for `cells`: the log-likelihood and
 /// every cell's posterior summary. `None` when the cells cannot be aligned
-/// with the frames (probability 0). Memory `n_frames * (2 * cells + 1)`
-/// floats.
+/// with the frames (probability 0).
+///
+/// The forward pass keeps, per frame, only the band of positions whose
+/// scaled value is above `BAND_FLOOR` (a beam over the lattice, as in
+/// pruned forward-backward for speech recognition), so time and memory
+/// grow with `n_frames * band` rather than `n_frames * (2 * cells + 1)`.
 pub(crate) fn posteriors(frames: &Pruned, cells: &[Cell]) -> Option<(f64, Vec<CellPosterior>)> {
     let n_t = frames.n_frames();
     let n_s = 2 * cells.len() + 1;
@@ -119,51 +128,81 @@ pub(crate) fn posteriors(frames: &Pruned, cells: &[Cell]) -> Option<(f64, Vec<Ce
             None
         };
     }
-    // Forward, scaled; alpha[t * n_s + s].
-    let mut alpha = vec![0f64; n_t * n_s];
+    // Forward, scaled and banded: frame t holds positions lo[t]..=hi[t] at
+    // alpha[off[t]..].
+    let mut lo: Vec<usize> = Vec::with_capacity(n_t);
+    let mut hi: Vec<usize> = Vec::with_capacity(n_t);
+    let mut off: Vec<usize> = Vec::with_capacity(n_t);
+    let mut alpha: Vec<f64> = Vec::new();
     let mut log_scale = 0f64;
+    let mut row: Vec<f64> = Vec::new();
     for t in 0..n_t {
-        let row = t * n_s;
-        if t == 0 {
-            alpha[0] = y(frames, 0, None);
-            if n_s > 1 {
-                alpha[1] = y(frames, 0, label(cells, 1));
-            }
+        let (a, b) = if t == 0 {
+            (0, (n_s - 1).min(1))
         } else {
-            let prev = (t - 1) * n_s;
-            for s in 0..n_s {
-                let mut a = alpha[prev + s];
+            (lo[t - 1], (hi[t - 1] + 2).min(n_s - 1))
+        };
+        row.clear();
+        for s in a..=b {
+            let v = if t == 0 {
+                y(frames, 0, label(cells, s))
+            } else {
+                let (pl, ph, po) = (lo[t - 1], hi[t - 1], off[t - 1]);
+                let get = |q: usize| {
+                    if q >= pl && q <= ph {
+                        alpha[po + q - pl]
+                    } else {
+                        0.0
+                    }
+                };
+                let mut v = get(s);
                 if s >= 1 {
-                    a += alpha[prev + s - 1];
+                    v += get(s - 1);
                 }
                 if may_skip(cells, s) {
-                    a += alpha[prev + s - 2];
+                    v += get(s - 2);
                 }
-                alpha[row + s] = a * y(frames, t, label(cells, s));
-            }
+                v * y(frames, t, label(cells, s))
+            };
+            row.push(v);
         }
-        let c: f64 = alpha[row..row + n_s].iter().sum();
+        let c: f64 = row.iter().sum();
         if c <= 0.0 {
             return None;
         }
-        alpha[row..row + n_s].iter_mut().for_each(|a| *a /= c);
+        let inv = 1.0 / c;
+        row.iter_mut().for_each(|v| *v *= inv);
         log_scale += c.ln();
+        // Trim the band's edges. The end positions are never trimmed on the
+        // last frame, where the likelihood is read.
+        let (mut i, mut j) = (0, row.len() - 1);
+        while i < j && row[i] < BAND_FLOOR {
+            i += 1;
+        }
+        while j > i && row[j] < BAND_FLOOR && !(t == n_t - 1 && a + j + 2 >= n_s) {
+            j -= 1;
+        }
+        lo.push(a + i);
+        hi.push(a + j);
+        off.push(alpha.len());
+        alpha.extend_from_slice(&row[i..=j]);
     }
-    let last = (n_t - 1) * n_s;
-    let end = alpha[last + n_s - 1] + if n_s >= 2 { alpha[last + n_s - 2] } else { 0.0 };
+    let at = |t: usize, s: usize| -> f64 {
+        if s >= lo[t] && s <= hi[t] {
+            alpha[off[t] + s - lo[t]]
+        } else {
+            0.0
+        }
+    };
+    let end = at(n_t - 1, n_s - 1) + if n_s >= 2 { at(n_t - 1, n_s - 2) } else { 0.0 };
     if end <= 0.0 {
         return None;
     }
     let ll = end.ln() + log_scale;
 
-    // Backward without the current frame's emission: beta[s] at frame t is
-    // the probability of the frames after t given position s at t.
-    let mut beta = vec![0f64; n_s];
-    let mut prev_beta = vec![0f64; n_s];
-    beta[n_s - 1] = 1.0;
-    if n_s >= 2 {
-        beta[n_s - 2] = 1.0;
-    }
+    // Backward without the current frame's emission, on the same bands:
+    // beta_t(s) = sum over s' in {s, s+1, s+2 if allowed} of
+    // y_{t+1}(l'(s')) beta_{t+1}(s').
     let mut out: Vec<CellPosterior> = cells
         .iter()
         .map(|_| CellPosterior {
@@ -173,57 +212,72 @@ pub(crate) fn posteriors(frames: &Pruned, cells: &[Cell]) -> Option<(f64, Vec<Ce
         })
         .collect();
     let mut best_frame = vec![(0usize, -1f64); cells.len()];
-    let mut gamma = vec![0f64; n_s];
+    let mut beta: Vec<f64> = Vec::new();
+    let mut next_beta: Vec<f64> = Vec::new();
     for t in (0..n_t).rev() {
-        if t < n_t - 1 {
-            // beta_t(s) = sum over s' in {s, s+1, s+2 if allowed} of
-            // y_{t+1}(l'(s')) beta_{t+1}(s').
-            std::mem::swap(&mut beta, &mut prev_beta);
-            for s in 0..n_s {
-                let mut b = prev_beta[s] * y(frames, t + 1, label(cells, s));
+        let (a, b) = (lo[t], hi[t]);
+        beta.clear();
+        if t == n_t - 1 {
+            for s in a..=b {
+                beta.push(if s + 2 >= n_s { 1.0 } else { 0.0 });
+            }
+        } else {
+            let (na, nb) = (lo[t + 1], hi[t + 1]);
+            let nb_at = |q: usize| -> f64 {
+                if q >= na && q <= nb {
+                    next_beta[q - na] * y(frames, t + 1, label(cells, q))
+                } else {
+                    0.0
+                }
+            };
+            for s in a..=b {
+                let mut v = nb_at(s);
                 if s + 1 < n_s {
-                    b += prev_beta[s + 1] * y(frames, t + 1, label(cells, s + 1));
+                    v += nb_at(s + 1);
                 }
                 if s + 2 < n_s && may_skip(cells, s + 2) {
-                    b += prev_beta[s + 2] * y(frames, t + 1, label(cells, s + 2));
+                    v += nb_at(s + 2);
                 }
-                beta[s] = b;
+                beta.push(v);
             }
             let c: f64 = beta.iter().sum();
             if c > 0.0 {
-                beta.iter_mut().for_each(|b| *b /= c);
+                let inv = 1.0 / c;
+                beta.iter_mut().for_each(|v| *v *= inv);
             }
         }
-        let row = t * n_s;
         let mut z = 0f64;
-        for s in 0..n_s {
-            gamma[s] = alpha[row + s] * beta[s];
-            z += gamma[s];
+        for s in a..=b {
+            z += alpha[off[t] + s - a] * beta[s - a];
         }
-        if z <= 0.0 {
-            continue;
-        }
-        let not_blank = 1.0 - frames.blank[t];
-        for (i, post) in out.iter_mut().enumerate() {
-            let g = gamma[2 * i + 1] / z;
-            if g > best_frame[i].1 {
-                best_frame[i] = (t, g);
-            }
-            if g < 1e-6 {
-                continue;
-            }
-            post.weight += g;
-            if g >= 0.5 {
-                post.frames.0 = post.frames.0.min(t);
-                post.frames.1 = post.frames.1.max(t);
-            }
-            if not_blank > 0.0 {
-                let k = g / not_blank;
-                for (m, q) in post.q.iter_mut().enumerate() {
-                    *q += k * frames.p(t, m as u8);
+        if z > 0.0 {
+            let not_blank = 1.0 - frames.blank[t];
+            // Odd positions in the band are cells.
+            let first = if a % 2 == 1 { a } else { a + 1 };
+            for s in (first..=b).step_by(2) {
+                let i = s / 2;
+                let g = alpha[off[t] + s - a] * beta[s - a] / z;
+                if g > best_frame[i].1 {
+                    best_frame[i] = (t, g);
+                }
+                if g < 1e-6 {
+                    continue;
+                }
+                let post = &mut out[i];
+                post.weight += g;
+                if g >= 0.5 {
+                    post.frames.0 = post.frames.0.min(t);
+                    post.frames.1 = post.frames.1.max(t);
+                }
+                if not_blank > 0.0 {
+                    let k = g / not_blank;
+                    for (m, q) in post.q.iter_mut().enumerate() {
+                        *q += k * frames.p(t, m as u8);
+                    }
                 }
             }
         }
+        std::mem::swap(&mut beta, &mut next_beta);
     }
     for (post, &(t, _)) in out.iter_mut().zip(&best_frame) {
         if post.frames.0 == usize::MAX {

@@ -50,6 +50,7 @@
 //! ```
 
 mod align;
+mod code;
 mod frames;
 mod search;
 

@@ -25,7 +25,66 @@ use super::frames::Pruned;
 use super::CodeReader;
 use crate::{Cell, Error, Result};
 use std::collections::HashMap;
-use std::hash::Hash;
+use std::hash::{BuildHasherDefault, Hash, Hasher};
+
+/// The multiply-rotate hash of rustc's `FxHasher` (from memory of the
+/// rustc-hash crate): far cheaper than SipHash on the small integer keys of
+/// the search, and collision attacks do not matter here.
+#[derive(Default, Clone, Copy)]
+pub(crate) struct FxHasher {
+    hash: u64,
+}
+
+const FX_SEED: u64 = 0x51_7c_c1_b7_27_22_0a_95;
+
+impl FxHasher {
+    #[inline]
+    fn add(&mut self, x: u64) {
+        self.hash = (self.hash.rotate_left(5) ^ x).wrapping_mul(FX_SEED);
+    }
+}
+
+impl Hasher for FxHasher {
+    #[inline]
+    fn write(&mut self, bytes: &[u8]) {
+        let mut chunks = bytes.chunks_exact(8);
+        for c in &mut chunks {
+            let mut b = [0u8; 8];
+            b.copy_from_slice(c);
+            self.add(u64::from_le_bytes(b));
+        }
+        for &b in chunks.remainder() {
+            self.add(b as u64);
+        }
+    }
+    #[inline]
+    fn write_u8(&mut self, i: u8) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn write_u16(&mut self, i: u16) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn write_u32(&mut self, i: u32) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn write_u64(&mut self, i: u64) {
+        self.add(i);
+    }
+    #[inline]
+    fn write_usize(&mut self, i: usize) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn finish(&self) -> u64 {
+        self.hash
+    }
+}
+
+/// A hash map with [`FxHasher`].
+pub(crate) type FxMap<K, V> = HashMap<K, V, BuildHasherDefault<FxHasher>>;
 
 /// Settings of the beam search. Build with [`BeamParams::default`] and change
 /// fields; [`BeamParams::check`] refuses meaningless values.
@@ -144,14 +203,14 @@ const ROOT: u32 = 0;
 /// A prefix tree: node `i` is `(parent, label)`; node 0 is the empty prefix.
 struct Trie<T: Hash + Eq + Clone> {
     nodes: Vec<(u32, T)>,
-    index: HashMap<(u32, T), u32>,
+    index: FxMap<(u32, T), u32>,
 }
 
 impl<T: Hash + Eq + Clone> Trie<T> {
     fn new(root_label: T) -> Self {
         Trie {
             nodes: vec![(ROOT, root_label)],
-            index: HashMap::new(),
+            index: FxMap::default(),
         }
     }
     fn child(&mut self, parent: u32, label: T) -> u32 {
@@ -177,71 +236,25 @@ impl<T: Hash + Eq + Clone> Trie<T> {
     }
 }
 
-#[derive(Hash, PartialEq, Eq)]
-enum Key<S> {
-    Cells(u32),
-    Text(u32, S, u8),
-}
-
-struct Hyp<R> {
+#[derive(Clone, Copy)]
+struct Hyp {
     cnode: u32,
-    tnode: u32,
     last: u8,
-    reader: R,
     pb: f64,
     pnb: f64,
-    /// Largest single contribution this frame (decides whose cells a merged
-    /// hypothesis reports).
-    best: f64,
 }
 
-impl<R: CodeReader> Hyp<R> {
+impl Hyp {
     fn total(&self) -> f64 {
         self.pb + self.pnb
     }
-    fn key(&self, merge: bool) -> Key<R::State> {
-        if merge {
-            Key::Text(self.tnode, self.reader.state(), self.last)
-        } else {
-            Key::Cells(self.cnode)
-        }
-    }
 }
 
-/// Add `(pb, pnb)` to the hypothesis under `key` in `next`, or create it
-/// (`make` gives the new hypothesis's text node, last cell and reader).
-#[allow(clippy::too_many_arguments)]
-fn add<R: CodeReader>(
-    next: &mut Vec<Hyp<R>>,
-    index: &mut HashMap<Key<R::State>, usize>,
-    key: Key<R::State>,
-    cnode: u32,
-    make: impl FnOnce() -> (u32, u8, R),
-    pb: f64,
-    pnb: f64,
-) {
-    let p = pb + pnb;
-    if let Some(&i) = index.get(&key) {
-        let h = &mut next[i];
-        h.pb += pb;
-        h.pnb += pnb;
-        if p > h.best {
-            // Only differs in merge mode: report the dominant cell path.
-            h.cnode = cnode;
-            h.best = p;
-        }
-    } else {
-        let (tnode, last, reader) = make();
-        index.insert(key, next.len());
-        next.push(Hyp {
-            cnode,
-            tnode,
-            last,
-            reader,
-            pb,
-            pnb,
-            best: p,
-        });
+/// Keep the `k` most probable hypotheses (unordered).
+fn keep_top(v: &mut Vec<Hyp>, k: usize) {
+    if v.len() > k {
+        v.select_nth_unstable_by(k - 1, |a, b| b.total().total_cmp(&a.total()));
+        v.truncate(k);
     }
 }
 
@@ -250,6 +263,12 @@ fn add<R: CodeReader>(
 /// the search; with `by_text`, the final hypotheses are grouped by text
 /// (their probabilities add). Results are sorted by decreasing score: every
 /// hypothesis of the final beam.
+///
+/// Within a frame hypotheses are keyed by their cell sequence (a node of a
+/// prefix tree of cells). The reader is run only for the hypotheses that
+/// survive a first cut to twice the beam width, once per tree node (the
+/// reader after a cell path depends only on the path); then hypotheses of
+/// equal text, state and last cell merge and the beam is cut to its width.
 pub(crate) fn search<R: CodeReader>(
     frames: &Pruned,
     reader: R,
@@ -259,73 +278,51 @@ pub(crate) fn search<R: CodeReader>(
 ) -> Vec<Found> {
     let mut cells: Trie<u8> = Trie::new(NO_CELL);
     let mut texts: Trie<String> = Trie::new(String::new());
-    let mut beam: Vec<Hyp<R>> = vec![Hyp {
+    // Text node and reader after each cell-tree node, once computed; the
+    // root's is the initial reader.
+    let mut after: Vec<Option<(u32, R)>> = vec![Some((ROOT, reader))];
+    let mut beam: Vec<Hyp> = vec![Hyp {
         cnode: ROOT,
-        tnode: ROOT,
         last: NO_CELL,
-        reader,
         pb: 1.0,
         pnb: 0.0,
-        best: 1.0,
     }];
     let mut log_scale = 0f64;
     let floor = (-params.score_margin).exp();
-    let mut next: Vec<Hyp<R>> = Vec::new();
-    let mut index: HashMap<Key<R::State>, usize> = HashMap::new();
+    let mut next: Vec<Hyp> = Vec::new();
+    let mut index: FxMap<u32, usize> = FxMap::default();
+    let mut by_key: FxMap<(u32, R::State, u8), usize> = FxMap::default();
+    let mut merged: Vec<Hyp> = Vec::new();
 
     for t in 0..frames.n_frames() {
         let blank = frames.blank[t];
         let (cands, probs) = frames.candidates(t);
         next.clear();
         index.clear();
-        for h in beam.drain(..) {
+        let mut add = |next: &mut Vec<Hyp>, cnode: u32, last: u8, pb: f64, pnb: f64| match index
+            .get(&cnode)
+        {
+            Some(&i) => {
+                next[i].pb += pb;
+                next[i].pnb += pnb;
+            }
+            None => {
+                index.insert(cnode, next.len());
+                next.push(Hyp {
+                    cnode,
+                    last,
+                    pb,
+                    pnb,
+                });
+            }
+        };
+        for h in &beam {
             let total = h.total();
             for (&c, &p) in cands.iter().zip(probs) {
                 let pnb = if c == h.last { h.pb * p } else { total * p };
-                if pnb <= 0.0 {
-                    continue;
-                }
-                let cnode = cells.child(h.cnode, c);
-                if merge {
-                    let mut r = h.reader.clone();
-                    let piece = r.push(Cell::from_mask(c));
-                    let tnode = if piece.is_empty() {
-                        h.tnode
-                    } else {
-                        texts.child(h.tnode, piece)
-                    };
-                    let key = Key::Text(tnode, r.state(), c);
-                    add(
-                        &mut next,
-                        &mut index,
-                        key,
-                        cnode,
-                        || (tnode, c, r),
-                        0.0,
-                        pnb,
-                    );
-                } else {
-                    let key = Key::Cells(cnode);
-                    let (parent_reader, parent_t) = (&h.reader, h.tnode);
-                    let texts = &mut texts;
-                    add(
-                        &mut next,
-                        &mut index,
-                        key,
-                        cnode,
-                        || {
-                            let mut r = parent_reader.clone();
-                            let piece = r.push(Cell::from_mask(c));
-                            let tnode = if piece.is_empty() {
-                                parent_t
-                            } else {
-                                texts.child(parent_t, piece)
-                            };
-                            (tnode, c, r)
-                        },
-                        0.0,
-                        pnb,
-                    );
+                if pnb > 0.0 {
+                    let cnode = cells.child(h.cnode, c);
+                    add(&mut next, cnode, c, 0.0, pnb);
                 }
             }
             // The prefix itself: a blank, or its last cell held.
@@ -336,17 +333,7 @@ pub(crate) fn search<R: CodeReader>(
                 h.pnb * frames.p(t, h.last)
             };
             if pb + pnb > 0.0 {
-                let key = h.key(merge);
-                let (cnode, tnode, last) = (h.cnode, h.tnode, h.last);
-                add(
-                    &mut next,
-                    &mut index,
-                    key,
-                    cnode,
-                    || (tnode, last, h.reader),
-                    pb,
-                    pnb,
-                );
+                add(&mut next, h.cnode, h.last, pb, pnb);
             }
         }
         let max = next.iter().map(Hyp::total).fold(0.0, f64::max);
@@ -362,20 +349,65 @@ pub(crate) fn search<R: CodeReader>(
             h.pnb *= inv;
         }
         next.retain(|h| h.total() >= floor);
-        if next.len() > params.beam_width {
-            next.select_nth_unstable_by(params.beam_width - 1, |a, b| {
-                b.total().total_cmp(&a.total())
-            });
-            next.truncate(params.beam_width);
+        keep_top(&mut next, 2 * params.beam_width);
+        // Run the reader on the new tree nodes among the survivors.
+        for h in &next {
+            let node = h.cnode as usize;
+            if after.len() <= node {
+                after.resize_with(node + 1, || None);
+            }
+            if after[node].is_none() {
+                let (parent, c) = cells.nodes[node];
+                let Some((ptext, preader)) = &after[parent as usize] else {
+                    continue;
+                };
+                let mut r = preader.clone();
+                let piece = r.push(Cell::from_mask(c));
+                let tnode = if piece.is_empty() {
+                    *ptext
+                } else {
+                    texts.child(*ptext, piece)
+                };
+                after[node] = Some((tnode, r));
+            }
         }
+        if merge {
+            by_key.clear();
+            merged.clear();
+            for h in &next {
+                let Some((tnode, r)) = &after[h.cnode as usize] else {
+                    continue;
+                };
+                match by_key.entry((*tnode, r.state(), h.last)) {
+                    std::collections::hash_map::Entry::Occupied(e) => {
+                        let m: &mut Hyp = &mut merged[*e.get()];
+                        if h.total() > m.total() {
+                            // Report the dominant cell path.
+                            m.cnode = h.cnode;
+                        }
+                        m.pb += h.pb;
+                        m.pnb += h.pnb;
+                    }
+                    std::collections::hash_map::Entry::Vacant(e) => {
+                        e.insert(merged.len());
+                        merged.push(*h);
+                    }
+                }
+            }
+            std::mem::swap(&mut next, &mut merged);
+        }
+        keep_top(&mut next, params.beam_width);
         std::mem::swap(&mut beam, &mut next);
     }
 
     let mut found: Vec<(Found, f64)> = Vec::with_capacity(beam.len());
-    for h in beam {
+    for h in &beam {
         let p = h.total();
-        let mut text: String = texts.path(h.tnode).concat();
-        text.push_str(&h.reader.finish());
+        let Some((tnode, r)) = &after[h.cnode as usize] else {
+            continue;
+        };
+        let mut text: String = texts.path(*tnode).concat();
+        text.push_str(&r.clone().finish());
         let cells = cells
             .path(h.cnode)
             .into_iter()
