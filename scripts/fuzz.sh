@@ -29,7 +29,7 @@ cd "$ROOT"
 
 RUNS="${1:-1000000}"
 shift || true
-ALL_TARGETS=(csv_frames npy_frames manifest code_table word_list lexicon_file)
+ALL_TARGETS=(csv_frames npy_frames manifest code_table word_list lexicon_file model_file sensor_file)
 if [ "$#" -gt 0 ]; then
     TARGETS=("$@")
 else
@@ -70,11 +70,17 @@ gather() { # gather TARGET FILE... : copy files into the target's seed folder
 }
 
 shopt -s nullglob globstar
-gather csv_frames tests/compat/**/*.csv demo-data/**/*.csv
+gather csv_frames tests/compat/**/*.csv
 gather npy_frames tests/compat/**/*.npy demo-data/**/*.npy
 gather manifest tests/compat/**/*.json demo-data/**/*.json
 gather code_table lexicons/*/code.txt tests/compat/**/code*.txt
 gather lexicon_file tests/compat/**/*.lex
+gather model_file tests/compat/**/model*.json
+gather sensor_file sensors/*.json
+for f in demo-data/**/*.csv; do
+    # The first rows of each demo recording (whole ones are 100-200 KiB).
+    head -n 12 "$f" >"$SCRATCH/csv_frames/$(echo "$f" | tr '/' '_')"
+done
 mkdir -p "$SCRATCH/word_list"
 for f in lexicons/*/words.txt; do
     # The head of each list: the whole lists (half a MiB each) are far
