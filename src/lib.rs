@@ -20,6 +20,9 @@
 //! | baseline, scale, resampling by position or time | [`prep`] |
 //! | GRU network, output head, CTC loss, Adam | [`net`] |
 //! | batching, training loop, checkpoints | [`train`] |
+//! | beam search, character hypotheses | [`decode`] |
+//! | word lists, fst lexicons, word rescoring | [`lexicon`] |
+//! | simulated recordings from text | [`simulate`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -31,13 +34,16 @@
 #![deny(missing_docs)]
 
 pub mod braille;
+pub mod decode;
 mod error;
+pub mod lexicon;
 pub mod metrics;
 pub mod net;
 pub mod prep;
 pub mod recording;
 pub mod report;
 pub mod train;
+pub mod simulate;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};

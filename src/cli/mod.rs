@@ -6,7 +6,12 @@ use clap::{Parser, Subcommand};
 use tactread::Result;
 
 mod cells;
+mod compare;
 mod demo;
+mod inspect;
+mod lexicon;
+mod simulate;
+mod show;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -20,14 +25,29 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Build lexicon files from word lists and look into them.
+    Lexicon(lexicon::Args),
     /// Write text as braille cells, or read braille cells back as text.
     Cells(cells::Args),
+    /// Check recordings against the format and summarise them.
+    Inspect(inspect::Args),
+    /// Simulate tactile recordings of braille text, one or a whole dataset.
+    Simulate(Box<simulate::Args>),
+    /// Compare two metric files of the same test set, with paired bootstrap intervals.
+    Compare(compare::Args),
+    /// Draw one recording's taxel signals with its ground-truth cells as an SVG file.
+    Show(show::Args),
 }
 
 /// Run the parsed command line.
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
+        Command::Inspect(args) => inspect::run(args),
+        Command::Simulate(args) => simulate::run(*args),
+        Command::Compare(args) => compare::run(args),
+        Command::Show(args) => show::run(args),
     }
 }

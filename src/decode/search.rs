@@ -1,0 +1,467 @@
+//! CTC prefix beam search over the 64 six-dot cell patterns, optionally
+//! carrying the braille code's reader state inside every hypothesis.
+//!
+//! The algorithm is the prefix search of Graves (2012, "Supervised Sequence
+//! Labelling with Recurrent Neural Networks", section 7.5) in the form given
+//! by Hannun et al. (2014, "First-pass large vocabulary continuous speech
+//! recognition using bi-directional recurrent DNNs", algorithm 1): every
+//! prefix keeps the probability of all alignments ending in a blank (`p_b`)
+//! and of those ending in its last cell (`p_nb`), so that a repeated cell is
+//! only a new cell when a blank separates the two (the CTC collapse rule of
+//! Graves et al. 2006).
+//!
+//! Probabilities are kept in linear space in `f64` and rescaled after every
+//! frame (the running log of the scale factors is added back at the end);
+//! hypotheses more than `score_margin` nats below the best are dropped, so the
+//! rescaled values never underflow.
+//!
+//! With a code reader, a hypothesis also carries a clone of the reader and
+//! the text its cells produced. Two hypotheses with the same text, the same
+//! reader state and the same last cell have the same future, so in
+//! `merge_equal_text` mode they are merged into one (their probabilities
+//! add): the beam then ranks character strings rather than cell strings.
+
+use super::frames::Pruned;
+use super::CodeReader;
+use crate::{Cell, Error, Result};
+use std::collections::HashMap;
+use std::hash::{BuildHasherDefault, Hash, Hasher};
+
+/// The multiply-rotate hash of rustc's `FxHasher` (from memory of the
+/// rustc-hash crate): far cheaper than SipHash on the small integer keys of
+/// the search, and collision attacks do not matter here.
+#[derive(Default, Clone, Copy)]
+pub(crate) struct FxHasher {
+    hash: u64,
+}
+
+const FX_SEED: u64 = 0x51_7c_c1_b7_27_22_0a_95;
+
+impl FxHasher {
+    #[inline]
+    fn add(&mut self, x: u64) {
+        self.hash = (self.hash.rotate_left(5) ^ x).wrapping_mul(FX_SEED);
+    }
+}
+
+impl Hasher for FxHasher {
+    #[inline]
+    fn write(&mut self, bytes: &[u8]) {
+        let mut chunks = bytes.chunks_exact(8);
+        for c in &mut chunks {
+            let mut b = [0u8; 8];
+            b.copy_from_slice(c);
+            self.add(u64::from_le_bytes(b));
+        }
+        for &b in chunks.remainder() {
+            self.add(b as u64);
+        }
+    }
+    #[inline]
+    fn write_u8(&mut self, i: u8) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn write_u16(&mut self, i: u16) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn write_u32(&mut self, i: u32) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn write_u64(&mut self, i: u64) {
+        self.add(i);
+    }
+    #[inline]
+    fn write_usize(&mut self, i: usize) {
+        self.add(i as u64);
+    }
+    #[inline]
+    fn finish(&self) -> u64 {
+        self.hash
+    }
+}
+
+/// A hash map with [`FxHasher`].
+pub(crate) type FxMap<K, V> = HashMap<K, V, BuildHasherDefault<FxHasher>>;
+
+/// Settings of the beam search. Build with [`BeamParams::default`] and change
+/// fields; [`BeamParams::check`] refuses meaningless values.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BeamParams {
+    /// Hypotheses kept after each frame. Default 16. A width of 1 keeps only
+    /// the most probable prefix (close to, but not always the same as, greedy
+    /// best-path decoding).
+    pub beam_width: usize,
+    /// Hypotheses returned, at most `beam_width`. Default 5.
+    pub n_best: usize,
+    /// A pattern is tried as an extension at a frame only if its probability
+    /// there is at least this. Default 1e-3. The frame's most probable pattern
+    /// is always tried.
+    pub min_cell_prob: f64,
+    /// At most this many patterns are tried per frame. Default 8.
+    pub max_cells_per_frame: usize,
+    /// A frame whose blank probability is above this tries no extension at
+    /// all (the existing hypotheses are carried over exactly). Default 0.999.
+    pub blank_skip: f64,
+    /// Hypotheses whose probability is more than this many nats below the
+    /// best one after a frame are dropped. Default 30.
+    pub score_margin: f64,
+    /// Merge hypotheses whose cells produced the same text, reader state and
+    /// last cell (only used when decoding with a code reader). Default true.
+    pub merge_equal_text: bool,
+}
+
+impl Default for BeamParams {
+    fn default() -> Self {
+        BeamParams {
+            beam_width: 16,
+            n_best: 5,
+            min_cell_prob: 1e-3,
+            max_cells_per_frame: 8,
+            blank_skip: 0.999,
+            score_margin: 30.0,
+            merge_equal_text: true,
+        }
+    }
+}
+
+impl BeamParams {
+    /// Check the settings: widths at least 1, probabilities in range, a
+    /// positive margin.
+    pub fn check(&self) -> Result<()> {
+        if self.beam_width == 0 {
+            return Err(Error::config(
+                "beam width",
+                "must be at least 1 (default 16)",
+            ));
+        }
+        if self.n_best == 0 {
+            return Err(Error::config("n-best", "must be at least 1 (default 5)"));
+        }
+        if self.max_cells_per_frame == 0 || self.max_cells_per_frame > 64 {
+            return Err(Error::config(
+                "cells per frame",
+                format!("{} is not in 1..=64 (default 8)", self.max_cells_per_frame),
+            ));
+        }
+        if !(0.0..=1.0).contains(&self.min_cell_prob) {
+            return Err(Error::config(
+                "minimum cell probability",
+                format!("{} is not in 0..=1 (default 0.001)", self.min_cell_prob),
+            ));
+        }
+        if !(0.0..=1.0).contains(&self.blank_skip) {
+            return Err(Error::config(
+                "blank skip threshold",
+                format!("{} is not in 0..=1 (default 0.999)", self.blank_skip),
+            ));
+        }
+        if self.score_margin.is_nan() || self.score_margin <= 0.0 {
+            return Err(Error::config(
+                "score margin",
+                format!(
+                    "{} must be a positive number of nats (default 30)",
+                    self.score_margin
+                ),
+            ));
+        }
+        Ok(())
+    }
+}
+
+/// A reader that produces no text and has one state: the beam then ranks
+/// cell sequences.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct NoReader;
+
+impl CodeReader for NoReader {
+    type State = ();
+    fn push(&mut self, _cell: Cell) -> String {
+        String::new()
+    }
+    fn state(&self) -> Self::State {}
+    fn finish(self) -> String {
+        String::new()
+    }
+}
+
+/// One result of the search.
+#[derive(Debug, Clone)]
+pub(crate) struct Found {
+    pub cells: Vec<Cell>,
+    pub text: String,
+    /// Natural log of the (beam-approximated) probability of the cells (or,
+    /// after text merging, of the text) given the frames.
+    pub log_score: f64,
+}
+
+const NO_CELL: u8 = u8::MAX;
+const ROOT: u32 = 0;
+
+/// A prefix tree: node `i` is `(parent, label)`; node 0 is the empty prefix.
+struct Trie<T: Hash + Eq + Clone> {
+    nodes: Vec<(u32, T)>,
+    index: FxMap<(u32, T), u32>,
+}
+
+impl<T: Hash + Eq + Clone> Trie<T> {
+    fn new(root_label: T) -> Self {
+        Trie {
+            nodes: vec![(ROOT, root_label)],
+            index: FxMap::default(),
+        }
+    }
+    fn child(&mut self, parent: u32, label: T) -> u32 {
+        let key = (parent, label);
+        if let Some(&id) = self.index.get(&key) {
+            return id;
+        }
+        let id = self.nodes.len() as u32;
+        self.nodes.push(key.clone());
+        self.index.insert(key, id);
+        id
+    }
+    /// Labels from the root to `node`, root excluded.
+    fn path(&self, mut node: u32) -> Vec<T> {
+        let mut out = Vec::new();
+        while node != ROOT {
+            let (parent, label) = &self.nodes[node as usize];
+            out.push(label.clone());
+            node = *parent;
+        }
+        out.reverse();
+        out
+    }
+}
+
+#[derive(Clone, Copy)]
+struct Hyp {
+    cnode: u32,
+    last: u8,
+    pb: f64,
+    pnb: f64,
+}
+
+impl Hyp {
+    fn total(&self) -> f64 {
+        self.pb + self.pnb
+    }
+}
+
+/// Keep the `k` most probable hypotheses (unordered).
+fn keep_top(v: &mut Vec<Hyp>, k: usize) {
+    if v.len() > k {
+        v.select_nth_unstable_by(k - 1, |a, b| b.total().total_cmp(&a.total()));
+        v.truncate(k);
+    }
+}
+
+/// Run the prefix beam search over pruned frames, starting from `reader`.
+/// With `merge`, hypotheses of equal text, state and last cell merge during
+/// the search; with `by_text`, the final hypotheses are grouped by text
+/// (their probabilities add). Results are sorted by decreasing score: every
+/// hypothesis of the final beam.
+///
+/// Within a frame hypotheses are keyed by their cell sequence (a node of a
+/// prefix tree of cells). The reader is run only for the hypotheses that
+/// survive a first cut to twice the beam width, once per tree node (the
+/// reader after a cell path depends only on the path); then hypotheses of
+/// equal text, state and last cell merge and the beam is cut to its width.
+pub(crate) fn search<R: CodeReader>(
+    frames: &Pruned,
+    reader: R,
+    params: &BeamParams,
+    merge: bool,
+    by_text: bool,
+) -> Vec<Found> {
+    let mut cells: Trie<u8> = Trie::new(NO_CELL);
+    let mut texts: Trie<String> = Trie::new(String::new());
+    // Text node and reader after each cell-tree node, once computed; the
+    // root's is the initial reader.
+    let mut after: Vec<Option<(u32, R)>> = vec![Some((ROOT, reader))];
+    let mut beam: Vec<Hyp> = vec![Hyp {
+        cnode: ROOT,
+        last: NO_CELL,
+        pb: 1.0,
+        pnb: 0.0,
+    }];
+    let mut log_scale = 0f64;
+    let floor = (-params.score_margin).exp();
+    let mut next: Vec<Hyp> = Vec::new();
+    let mut index: FxMap<u32, usize> = FxMap::default();
+    let mut by_key: FxMap<(u32, R::State, u8), usize> = FxMap::default();
+    let mut merged: Vec<Hyp> = Vec::new();
+
+    for t in 0..frames.n_frames() {
+        let blank = frames.blank[t];
+        let (cands, probs) = frames.candidates(t);
+        next.clear();
+        index.clear();
+        let mut add = |next: &mut Vec<Hyp>, cnode: u32, last: u8, pb: f64, pnb: f64| match index
+            .get(&cnode)
+        {
+            Some(&i) => {
+                next[i].pb += pb;
+                next[i].pnb += pnb;
+            }
+            None => {
+                index.insert(cnode, next.len());
+                next.push(Hyp {
+                    cnode,
+                    last,
+                    pb,
+                    pnb,
+                });
+            }
+        };
+        for h in &beam {
+            let total = h.total();
+            for (&c, &p) in cands.iter().zip(probs) {
+                let pnb = if c == h.last { h.pb * p } else { total * p };
+                if pnb > 0.0 {
+                    let cnode = cells.child(h.cnode, c);
+                    add(&mut next, cnode, c, 0.0, pnb);
+                }
+            }
+            // The prefix itself: a blank, or its last cell held.
+            let pb = total * blank;
+            let pnb = if h.last == NO_CELL {
+                0.0
+            } else {
+                h.pnb * frames.p(t, h.last)
+            };
+            if pb + pnb > 0.0 {
+                add(&mut next, h.cnode, h.last, pb, pnb);
+            }
+        }
+        let max = next.iter().map(Hyp::total).fold(0.0, f64::max);
+        if !(max > 0.0 && max.is_finite()) {
+            // Every hypothesis died (only possible with degenerate settings):
+            // report nothing rather than invent a reading.
+            return Vec::new();
+        }
+        log_scale += max.ln();
+        let inv = 1.0 / max;
+        for h in next.iter_mut() {
+            h.pb *= inv;
+            h.pnb *= inv;
+        }
+        next.retain(|h| h.total() >= floor);
+        keep_top(&mut next, 2 * params.beam_width);
+        // Run the reader on the new tree nodes among the survivors.
+        for h in &next {
+            let node = h.cnode as usize;
+            if after.len() <= node {
+                after.resize_with(node + 1, || None);
+            }
+            if after[node].is_none() {
+                let (parent, c) = cells.nodes[node];
+                let Some((ptext, preader)) = &after[parent as usize] else {
+                    continue;
+                };
+                let mut r = preader.clone();
+                let piece = r.push(Cell::from_mask(c));
+                let tnode = if piece.is_empty() {
+                    *ptext
+                } else {
+                    texts.child(*ptext, piece)
+                };
+                after[node] = Some((tnode, r));
+            }
+        }
+        if merge {
+            by_key.clear();
+            merged.clear();
+            for h in &next {
+                let Some((tnode, r)) = &after[h.cnode as usize] else {
+                    continue;
+                };
+                match by_key.entry((*tnode, r.state(), h.last)) {
+                    std::collections::hash_map::Entry::Occupied(e) => {
+                        let m: &mut Hyp = &mut merged[*e.get()];
+                        if h.total() > m.total() {
+                            // Report the dominant cell path.
+                            m.cnode = h.cnode;
+                        }
+                        m.pb += h.pb;
+                        m.pnb += h.pnb;
+                    }
+                    std::collections::hash_map::Entry::Vacant(e) => {
+                        e.insert(merged.len());
+                        merged.push(*h);
+                    }
+                }
+            }
+            std::mem::swap(&mut next, &mut merged);
+        }
+        keep_top(&mut next, params.beam_width);
+        std::mem::swap(&mut beam, &mut next);
+    }
+
+    let mut found: Vec<(Found, f64)> = Vec::with_capacity(beam.len());
+    for h in &beam {
+        let p = h.total();
+        let Some((tnode, r)) = &after[h.cnode as usize] else {
+            continue;
+        };
+        let mut text: String = texts.path(*tnode).concat();
+        text.push_str(&r.clone().finish());
+        let cells = cells
+            .path(h.cnode)
+            .into_iter()
+            .map(Cell::from_mask)
+            .collect();
+        found.push((
+            Found {
+                cells,
+                text,
+                log_score: p.ln() + log_scale,
+            },
+            p,
+        ));
+    }
+    if by_text {
+        // Different last cells or final states can still read the same:
+        // the text's probability is the sum over them.
+        let mut by_text: HashMap<String, usize> = HashMap::new();
+        let mut merged: Vec<(Found, f64)> = Vec::new();
+        found.sort_by(|a, b| b.1.total_cmp(&a.1));
+        for (f, p) in found {
+            match by_text.get(&f.text) {
+                Some(&i) => merged[i].1 += p,
+                None => {
+                    by_text.insert(f.text.clone(), merged.len());
+                    merged.push((f, p));
+                }
+            }
+        }
+        for (f, p) in merged.iter_mut() {
+            f.log_score = p.ln() + log_scale;
+        }
+        found = merged;
+    }
+    found.sort_by(|a, b| b.1.total_cmp(&a.1).then_with(|| a.0.cells.cmp(&b.0.cells)));
+    found.into_iter().map(|(f, _)| f).collect()
+}
+
+/// Greedy best-path decoding: the most probable class of every frame, repeats
+/// collapsed, blanks removed (Graves et al. 2006, section 3.2).
+pub(crate) fn greedy(log_probs: &ndarray::ArrayView2<f32>) -> Vec<Cell> {
+    let mut out = Vec::new();
+    let mut prev = usize::MAX;
+    for row in log_probs.outer_iter() {
+        let mut best = 0;
+        for (c, &v) in row.iter().enumerate() {
+            if v > row[best] {
+                best = c;
+            }
+        }
+        if best != super::frames::BLANK && best != prev {
+            out.push(Cell::from_mask(best as u8));
+        }
+        prev = best;
+    }
+    out
+}

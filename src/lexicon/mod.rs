@@ -1,0 +1,464 @@
+//! Lexicons: word lists with counts, compiled into an `fst` map (word ->
+//! count) inside a small tagged file, near-word search with the fst crate's
+//! Levenshtein automaton, and whole-word rescoring of decoded text.
+//!
+//! ## Word lists
+//!
+//! One word per line, optionally followed by a tab and a whole-number count
+//! (a word without a count counts 1). Blank lines are skipped. Words are
+//! folded to lower case; a word listed twice (after folding) has its counts
+//! added. A line with more than one tab, a word with a space in it, or a
+//! count that is not a whole number is an error naming the file and line.
+//!
+//! ## Lexicon files
+//!
+//! ```text
+//! offset  size  content
+//! 0       16    b"tactread-lexicon"                 format tag
+//! 16      4     u32 little-endian format version    (FORMAT_VERSION)
+//! 20      8     u64 LE sum of all counts
+//! 28      2     u16 LE length n of the language tag
+//! 30      n     language tag, UTF-8 (empty: any language)
+//! 30+n    ...   fst map bytes (word -> count), fst crate 0.4 format
+//! ```
+//!
+//! Loading checks the tag and the version and refuses anything else with
+//! [`Error::Format`].
+//!
+//! ## Builtin lexicons
+//!
+//! The four builtin languages' word lists (`lexicons/<lang>/words.txt`,
+//! made from wordfreq data by `scripts/make_wordlists.py`) are embedded in
+//! the binary as text and compiled when first asked for: parsing 40,000
+//! lines and building the fst takes a few tens of milliseconds (see
+//! docs/benchmarks.md, "Decoder"), far below a network forward pass, and it
+//! keeps one source of truth in the repository instead of a binary file that
+//! can fall out of step with it.
+
+mod rescore;
+
+pub use rescore::{
+    rescore, tune, RescoreWeights, Rescored, TuneItem, Tuned, WeightGrid, WordCandidate, WordChoice,
+};
+
+pub(crate) use rescore::rescore_pruned;
+
+use crate::{Error, Location, Result};
+use fst::automaton::Levenshtein;
+use fst::{IntoStreamer, Map, MapBuilder, Streamer};
+use std::collections::BTreeMap;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// Format tag at the start of every lexicon file.
+pub const FORMAT_TAG: &[u8; 16] = b"tactread-lexicon";
+/// Lexicon file format version this build writes and reads.
+pub const FORMAT_VERSION: u32 = 1;
+
+/// Languages with a builtin word list.
+pub const BUILTIN_LANGS: [&str; 4] = ["en", "de", "fr", "es"];
+
+/// One line of a word list.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct WordEntry {
+    /// The word, folded to lower case.
+    pub word: String,
+    /// Its count (1 when the line gives none).
+    pub count: u64,
+    /// 1-based line number in the word list.
+    pub line: usize,
+}
+
+/// Parse a word list (see the module docs for the format). `source` names
+/// the file in error messages.
+pub fn parse_word_list(text: &str, source: &Path) -> Result<Vec<WordEntry>> {
+    let mut out = Vec::new();
+    for (i, raw) in text.lines().enumerate() {
+        let line = i + 1;
+        let at = || Location::file(source).line(line);
+        let l = raw.strip_suffix('\r').unwrap_or(raw);
+        if l.trim().is_empty() {
+            continue;
+        }
+        let fields: Vec<&str> = l.split('\t').collect();
+        if fields.len() > 2 {
+            return Err(Error::input(
+                at(),
+                format!(
+                    "{} tab-separated fields: write `word` or `word<TAB>count`",
+                    fields.len()
+                ),
+            ));
+        }
+        let word = fields[0].trim();
+        if word.is_empty() {
+            return Err(Error::input(
+                at().field("word"),
+                "the word is empty: write `word` or `word<TAB>count`",
+            ));
+        }
+        if word.chars().any(char::is_whitespace) {
+            return Err(Error::input(
+                at().field("word"),
+                format!(
+                    "{word:?} contains a space: one word per line, and separate a count with a tab"
+                ),
+            ));
+        }
+        let count = match fields.get(1) {
+            None => 1,
+            Some(c) => c.trim().parse::<u64>().map_err(|_| {
+                Error::input(
+                    at().field("count"),
+                    format!("{:?} is not a whole number: the count after the tab must be an integer such as 42", c.trim()),
+                )
+            })?,
+        };
+        out.push(WordEntry {
+            word: word.to_lowercase(),
+            count,
+            line,
+        });
+    }
+    Ok(out)
+}
+
+/// A word list compiled for lookups: word -> count, in an fst map.
+pub struct Lexicon {
+    map: Map<Vec<u8>>,
+    total: u64,
+    lang: String,
+}
+
+impl std::fmt::Debug for Lexicon {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Lexicon")
+            .field("words", &self.map.len())
+            .field("total", &self.total)
+            .field("lang", &self.lang)
+            .finish()
+    }
+}
+
+/// A word near a query, from [`Lexicon::near`].
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct NearWord {
+    /// The lexicon's word.
+    pub word: String,
+    /// Its count.
+    pub count: u64,
+    /// Levenshtein distance (in characters) from the query.
+    pub edits: usize,
+}
+
+impl Lexicon {
+    /// Compile entries (duplicates add their counts). `lang` tags the
+    /// lexicon with the language it was made for (empty: any).
+    pub fn from_entries(entries: &[WordEntry], lang: &str) -> Result<Lexicon> {
+        let mut words: BTreeMap<&str, u64> = BTreeMap::new();
+        for e in entries {
+            let c = words.entry(e.word.as_str()).or_insert(0);
+            *c = c.saturating_add(e.count);
+        }
+        let mut builder = MapBuilder::memory();
+        let mut total = 0u64;
+        for (w, &c) in &words {
+            builder.insert(w, c).map_err(|e| {
+                Error::config("word list", format!("cannot build the lexicon: {e}"))
+            })?;
+            total = total.saturating_add(c);
+        }
+        let bytes = builder
+            .into_inner()
+            .map_err(|e| Error::config("word list", format!("cannot build the lexicon: {e}")))?;
+        let map = Map::new(bytes)
+            .map_err(|e| Error::config("word list", format!("cannot build the lexicon: {e}")))?;
+        Ok(Lexicon {
+            map,
+            total,
+            lang: lang.to_string(),
+        })
+    }
+
+    /// Parse and compile a word list file.
+    pub fn from_word_list_file(path: &Path, lang: &str) -> Result<Lexicon> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
+        Lexicon::from_entries(&parse_word_list(&text, path)?, lang)
+    }
+
+    /// The builtin lexicon of `lang` (one of [`BUILTIN_LANGS`]), compiled
+    /// from the embedded word list.
+    pub fn builtin(lang: &str) -> Result<Lexicon> {
+        let text = match lang {
+            "en" => include_str!("../../lexicons/en/words.txt"),
+            "de" => include_str!("../../lexicons/de/words.txt"),
+            "fr" => include_str!("../../lexicons/fr/words.txt"),
+            "es" => include_str!("../../lexicons/es/words.txt"),
+            other => {
+                return Err(Error::config(
+                    "language",
+                    format!(
+                        "no builtin lexicon for `{other}`: choose one of {}, or build one with `tactread lexicon build`",
+                        BUILTIN_LANGS.join(", ")
+                    ),
+                ))
+            }
+        };
+        let source = PathBuf::from(format!("lexicons/{lang}/words.txt"));
+        Lexicon::from_entries(&parse_word_list(text, &source)?, lang)
+    }
+
+    /// Number of distinct words.
+    pub fn len(&self) -> usize {
+        self.map.len()
+    }
+
+    /// Whether the lexicon holds no word.
+    pub fn is_empty(&self) -> bool {
+        self.map.is_empty()
+    }
+
+    /// The language tag (empty: any).
+    pub fn lang(&self) -> &str {
+        &self.lang
+    }
+
+    /// Sum of all counts.
+    pub fn total(&self) -> u64 {
+        self.total
+    }
+
+    /// The count of `word` (folded to lower case), if listed.
+    pub fn count(&self, word: &str) -> Option<u64> {
+        self.map.get(word.to_lowercase())
+    }
+
+    /// `ln((count + 1) / (total + words))` (add-one smoothing, so that a
+    /// listed word with count 0 still has a finite value), or `None` when
+    /// `word` is not listed.
+    pub fn log_prob(&self, word: &str) -> Option<f64> {
+        self.count(word).map(|c| self.log_prob_of_count(c))
+    }
+
+    pub(crate) fn log_prob_of_count(&self, count: u64) -> f64 {
+        ((count as f64 + 1.0) / (self.total as f64 + self.map.len() as f64)).ln()
+    }
+
+    /// Every listed word within `max_edits` character edits (insertions,
+    /// deletions, substitutions) of `query` (folded to lower case), found
+    /// with the fst crate's Levenshtein automaton; nearest first, then most
+    /// frequent. When the automaton for `max_edits` would be too large, the
+    /// search falls back to fewer edits.
+    pub fn near(&self, query: &str, max_edits: u32) -> Vec<NearWord> {
+        let q = query.to_lowercase();
+        let mut d = max_edits;
+        let lev = loop {
+            match Levenshtein::new(&q, d) {
+                Ok(l) => break Some(l),
+                Err(_) if d > 0 => d -= 1,
+                Err(_) => break None,
+            }
+        };
+        let mut out = Vec::new();
+        match lev {
+            Some(lev) => {
+                let mut stream = self.map.search(lev).into_stream();
+                while let Some((k, count)) = stream.next() {
+                    if let Ok(word) = std::str::from_utf8(k) {
+                        let edits = strsim::levenshtein(&q, word);
+                        out.push(NearWord {
+                            word: word.to_string(),
+                            count,
+                            edits,
+                        });
+                    }
+                }
+            }
+            None => {
+                if let Some(count) = self.map.get(&q) {
+                    out.push(NearWord {
+                        word: q.clone(),
+                        count,
+                        edits: 0,
+                    });
+                }
+            }
+        }
+        out.sort_by(|a, b| {
+            a.edits
+                .cmp(&b.edits)
+                .then(b.count.cmp(&a.count))
+                .then_with(|| a.word.cmp(&b.word))
+        });
+        out
+    }
+
+    /// Every word with its count, in byte order.
+    pub fn words(&self) -> Vec<(String, u64)> {
+        let mut out = Vec::with_capacity(self.map.len());
+        let mut stream = self.map.stream();
+        while let Some((k, v)) = stream.next() {
+            out.push((String::from_utf8_lossy(k).into_owned(), v));
+        }
+        out
+    }
+
+    /// The lexicon file's bytes (see the module docs for the layout).
+    pub fn to_bytes(&self) -> Vec<u8> {
+        let fst = self.map.as_fst().as_bytes();
+        let lang = self.lang.as_bytes();
+        let mut out = Vec::with_capacity(30 + lang.len() + fst.len());
+        out.extend_from_slice(FORMAT_TAG);
+        out.extend_from_slice(&FORMAT_VERSION.to_le_bytes());
+        out.extend_from_slice(&self.total.to_le_bytes());
+        out.extend_from_slice(&(lang.len() as u16).to_le_bytes());
+        out.extend_from_slice(lang);
+        out.extend_from_slice(fst);
+        out
+    }
+
+    /// Read a lexicon from a file's bytes; `path` names it in errors.
+    pub fn from_bytes(bytes: Vec<u8>, path: &Path) -> Result<Lexicon> {
+        let expected = format!("tactread-lexicon version {FORMAT_VERSION}");
+        let fail = |found: String| Error::Format {
+            path: path.to_path_buf(),
+            expected: expected.clone(),
+            found,
+            hint: "rebuild it from its word list with `tactread lexicon build WORDS --out PATH`"
+                .into(),
+        };
+        if bytes.len() < 30 || &bytes[..16] != FORMAT_TAG {
+            return Err(fail("a file that is not a tactread lexicon".into()));
+        }
+        let version = u32::from_le_bytes([bytes[16], bytes[17], bytes[18], bytes[19]]);
+        if version != FORMAT_VERSION {
+            return Err(fail(format!("tactread-lexicon version {version}")));
+        }
+        let mut total = [0u8; 8];
+        total.copy_from_slice(&bytes[20..28]);
+        let total = u64::from_le_bytes(total);
+        let n = u16::from_le_bytes([bytes[28], bytes[29]]) as usize;
+        if bytes.len() < 30 + n {
+            return Err(fail("a truncated lexicon (header cut short)".into()));
+        }
+        let lang = std::str::from_utf8(&bytes[30..30 + n])
+            .map_err(|_| fail("a language tag that is not UTF-8".into()))?
+            .to_string();
+        let map = Map::new(bytes[30 + n..].to_vec())
+            .map_err(|e| fail(format!("a damaged word map ({e})")))?;
+        Ok(Lexicon { map, total, lang })
+    }
+
+    /// Load a lexicon file.
+    pub fn load(path: &Path) -> Result<Lexicon> {
+        let bytes = std::fs::read(path).map_err(|e| Error::io("cannot read", path, e))?;
+        Lexicon::from_bytes(bytes, path)
+    }
+
+    /// Write the lexicon to `path` atomically (a temporary file in the same
+    /// folder, then a rename). Overwrites an existing file: callers that must
+    /// not do so check first.
+    pub fn save(&self, path: &Path) -> Result<()> {
+        write_atomic(path, &self.to_bytes())
+    }
+}
+
+/// Write `bytes` to `path` through a temporary file in the same folder.
+pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let dir = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "out".into());
+    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    let result = (|| {
+        let mut f = std::fs::File::create(&tmp).map_err(|e| Error::io("cannot create", &tmp, e))?;
+        f.write_all(bytes)
+            .map_err(|e| Error::io("cannot write", &tmp, e))?;
+        f.sync_all()
+            .map_err(|e| Error::io("cannot write", &tmp, e))?;
+        std::fs::rename(&tmp, path).map_err(|e| Error::io("cannot rename into", path, e))
+    })();
+    if result.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn lex(text: &str) -> Lexicon {
+        Lexicon::from_entries(&parse_word_list(text, Path::new("t.txt")).unwrap(), "en").unwrap()
+    }
+
+    #[test]
+    fn parses_counts_folds_case_and_adds_duplicates() {
+        let l = lex("Cat\t5\ndog\n\ncat\t2\r\n");
+        assert_eq!(l.len(), 2);
+        assert_eq!(l.count("cat"), Some(7));
+        assert_eq!(l.count("CAT"), Some(7));
+        assert_eq!(l.count("dog"), Some(1));
+        assert_eq!(l.total(), 8);
+        assert_eq!(l.count("cow"), None);
+    }
+
+    #[test]
+    fn bad_lines_name_file_and_line() {
+        let p = Path::new("w.txt");
+        let e = parse_word_list("ok\nbad\tx\n", p).unwrap_err().to_string();
+        assert!(e.contains("w.txt line 2") && e.contains("count"), "{e}");
+        let e = parse_word_list("a\tb\tc\n", p).unwrap_err().to_string();
+        assert!(e.contains("line 1") && e.contains("3 tab-separated"), "{e}");
+        let e = parse_word_list("x\nnew york\t3\n", p)
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("line 2") && e.contains("space"), "{e}");
+        let e = parse_word_list("\t3\n", p).unwrap_err().to_string();
+        assert!(e.contains("empty"), "{e}");
+    }
+
+    #[test]
+    fn near_finds_words_within_the_distance() {
+        let l = lex("cat\t10\ncar\t20\ncart\t1\ndog\t5\n");
+        let got: Vec<(String, usize)> = l
+            .near("cat", 1)
+            .into_iter()
+            .map(|n| (n.word, n.edits))
+            .collect();
+        // Levenshtein distances by hand: cat 0, car 1, cart 1, dog 3.
+        assert_eq!(
+            got,
+            vec![("cat".into(), 0), ("car".into(), 1), ("cart".into(), 1)]
+        );
+        assert!(l.near("dgo", 1).is_empty());
+        assert_eq!(l.near("dgo", 2)[0].word, "dog");
+    }
+
+    #[test]
+    fn bytes_round_trip_and_version_is_checked() {
+        let l = lex("über\t3\nzug\t4\n");
+        let b = l.to_bytes();
+        let back = Lexicon::from_bytes(b.clone(), Path::new("x.lex")).unwrap();
+        assert_eq!(back.words(), l.words());
+        assert_eq!(back.lang(), "en");
+        assert_eq!(back.total(), 7);
+        let mut newer = b.clone();
+        newer[16..20].copy_from_slice(&2u32.to_le_bytes());
+        let e = Lexicon::from_bytes(newer, Path::new("x.lex")).unwrap_err();
+        assert!(matches!(e, Error::Format { .. }));
+        assert!(e.to_string().contains("version 2"), "{e}");
+        let e = Lexicon::from_bytes(b"hello".to_vec(), Path::new("x.lex")).unwrap_err();
+        assert!(matches!(e, Error::Format { .. }));
+        let mut cut = b;
+        cut.truncate(40);
+        assert!(matches!(
+            Lexicon::from_bytes(cut, Path::new("x.lex")),
+            Err(Error::Format { .. })
+        ));
+    }
+}
