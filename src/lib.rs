@@ -42,8 +42,8 @@ pub mod net;
 pub mod prep;
 pub mod recording;
 pub mod report;
-pub mod train;
 pub mod simulate;
+pub mod train;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};
