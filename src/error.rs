@@ -61,7 +61,7 @@ impl fmt::Display for Location {
 #[derive(Debug, thiserror::Error)]
 pub enum Error {
     /// Reading or writing a file failed at the operating-system level.
-    #[error("{action} {path}: {source}")]
+    #[error("{action} {}", path.display())]
     Io {
         /// What was being done, e.g. "cannot read".
         action: &'static str,

@@ -17,8 +17,10 @@
 //! | --- | --- |
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
+//! | GRU network, output head, CTC loss, Adam | [`net`] |
 //! | beam search, character hypotheses | [`decode`] |
 //! | word lists, fst lexicons, word rescoring | [`lexicon`] |
+//! | simulated recordings from text | [`simulate`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -33,7 +35,11 @@ pub mod braille;
 pub mod decode;
 mod error;
 pub mod lexicon;
+pub mod metrics;
+pub mod net;
 pub mod recording;
+pub mod report;
+pub mod simulate;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};

@@ -7,7 +7,9 @@ use tactread::Result;
 
 mod cells;
 mod demo;
+mod inspect;
 mod lexicon;
+mod simulate;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -25,6 +27,10 @@ enum Command {
     Lexicon(lexicon::Args),
     /// Write text as braille cells, or read braille cells back as text.
     Cells(cells::Args),
+    /// Check recordings against the format and summarise them.
+    Inspect(inspect::Args),
+    /// Simulate tactile recordings of braille text, one or a whole dataset.
+    Simulate(Box<simulate::Args>),
 }
 
 /// Run the parsed command line.
@@ -33,5 +39,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Demo(args) => demo::run(args),
         Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
+        Command::Inspect(args) => inspect::run(args),
+        Command::Simulate(args) => simulate::run(*args),
     }
 }

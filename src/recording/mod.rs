@@ -29,13 +29,19 @@
 //! ```
 
 mod csv_frames;
+mod dataset;
 mod manifest;
+#[cfg(test)]
+mod no_panic_tests;
 mod npy_frames;
 mod save;
 mod stream;
 mod values;
 
 pub use csv_frames::{CsvFrameReader, Frame};
+pub use dataset::{
+    Dataset, DatasetEntry, DatasetIndex, Split, DATASET_FORMAT, DATASET_INDEX, DATASET_VERSION,
+};
 pub use save::{FramesKind, SaveOptions};
 pub use stream::{FrameChunk, RecordingStream};
 
@@ -65,6 +71,20 @@ pub struct SensorInfo {
     /// Units of the taxel values, e.g. "kPa", "adc".
     #[serde(default = "default_units")]
     pub units: String,
+}
+
+impl SensorInfo {
+    /// A sensor with `taxels` taxels sampled at `sample_rate_hz`, without a
+    /// name or taxel positions, in `arbitrary` units.
+    pub fn new(taxels: usize, sample_rate_hz: f64) -> Self {
+        SensorInfo {
+            name: None,
+            taxels,
+            positions_mm: None,
+            sample_rate_hz,
+            units: default_units(),
+        }
+    }
 }
 
 fn default_units() -> String {
@@ -99,6 +119,26 @@ pub struct Manifest {
     /// Machine-readable extras, e.g. `"speed_mm_s": 20.0` from the simulator.
     #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
     pub tags: BTreeMap<String, serde_json::Value>,
+}
+
+impl Manifest {
+    /// A manifest of the current format and version for `sensor`, with no
+    /// ground truth, notes or tags. `frames` is left empty:
+    /// [`Recording::save`] fills it in. Building manifests with this (and
+    /// struct update syntax) keeps code compiling when fields are added.
+    pub fn new(sensor: SensorInfo) -> Self {
+        Manifest {
+            format: MANIFEST_FORMAT.to_string(),
+            version: MANIFEST_VERSION,
+            frames: String::new(),
+            sensor,
+            npy_columns: None,
+            text: None,
+            lang: None,
+            notes: None,
+            tags: BTreeMap::new(),
+        }
+    }
 }
 
 /// Which leading columns an `.npy` frames file holds before its taxel

@@ -213,9 +213,11 @@ impl RecordingStream {
         let mut values = Vec::new();
         let n = match &mut self.source {
             Source::Csv(r) => {
+                // Reserve for a modest chunk only: the caller's max_frames
+                // times a large taxel count could be far more than the file.
                 let cap = max_frames.min(LOAD_CHUNK);
                 time_s.reserve(cap);
-                values.reserve(cap.saturating_mul(taxels));
+                values.reserve(cap.saturating_mul(taxels).min(1 << 20));
                 let mut n = 0;
                 while n < max_frames {
                     match r.read_row_into(&mut values)? {
