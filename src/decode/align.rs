@@ -107,8 +107,11 @@ pub(crate) struct CellPosterior {
 
 /// Positions whose scaled forward value falls below this (relative to the
 /// frame's total 1) are dropped from the band: alignments that improbable
-/// cannot move a posterior or the likelihood by a visible amount.
-const BAND_FLOOR: f64 = 1e-40;
+/// cannot move a posterior or the likelihood by a visible amount (unless
+/// later frames single them out as the only way to finish, which needs a
+/// labelling the frames barely support; the likelihood would then come out
+/// low, never high).
+const BAND_FLOOR: f64 = 1e-15;
 
 /// Frames whose posterior of emitting a cell is below this do not enter
 /// the cell's pattern distribution `q` (they would shift it by less than

@@ -296,8 +296,12 @@ fn top_patterns(q: &[f64; 64], n: usize) -> Vec<(Cell, f64)> {
         .filter(|(_, &p)| p > 0.0)
         .map(|(m, &p)| (Cell::from_mask(m as u8), p))
         .collect();
-    all.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
-    all.truncate(n);
+    let order = |a: &(Cell, f64), b: &(Cell, f64)| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0));
+    if all.len() > n && n > 0 {
+        all.select_nth_unstable_by(n - 1, order);
+        all.truncate(n);
+    }
+    all.sort_by(order);
     all
 }
 

@@ -46,9 +46,10 @@ pub(crate) use rescore::rescore_pruned;
 use crate::{Error, Location, Result};
 use fst::automaton::Levenshtein;
 use fst::{IntoStreamer, Map, MapBuilder, Streamer};
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashMap};
 use std::io::Write;
 use std::path::{Path, PathBuf};
+use std::sync::Mutex;
 
 /// Format tag at the start of every lexicon file.
 pub const FORMAT_TAG: &[u8; 16] = b"tactread-lexicon";
@@ -128,7 +129,14 @@ pub struct Lexicon {
     map: Map<Vec<u8>>,
     total: u64,
     lang: String,
+    /// Results of [`Lexicon::near`] by (query, edits): running words repeat
+    /// (Zipf), and building a Levenshtein automaton costs far more than a
+    /// lookup. Cleared when it reaches `NEAR_CACHE` entries.
+    near_cache: Mutex<HashMap<(String, u32), Vec<NearWord>>>,
 }
+
+/// Most entries kept in a lexicon's near-word cache.
+const NEAR_CACHE: usize = 20_000;
 
 impl std::fmt::Debug for Lexicon {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
@@ -177,6 +185,7 @@ impl Lexicon {
             map,
             total,
             lang: lang.to_string(),
+            near_cache: Mutex::default(),
         })
     }
 
@@ -251,6 +260,33 @@ impl Lexicon {
     /// search falls back to fewer edits.
     pub fn near(&self, query: &str, max_edits: u32) -> Vec<NearWord> {
         let q = query.to_lowercase();
+        let key = (q, max_edits);
+        if let Ok(cache) = self.near_cache.lock() {
+            if let Some(hit) = cache.get(&key) {
+                return hit.clone();
+            }
+        }
+        let out = self.near_uncached(&key.0, max_edits);
+        if let Ok(mut cache) = self.near_cache.lock() {
+            if cache.len() >= NEAR_CACHE {
+                cache.clear();
+            }
+            cache.insert(key, out.clone());
+        }
+        out
+    }
+
+    /// Forget the results [`Lexicon::near`] remembers (it keeps up to
+    /// 20,000 queries, since running text repeats its words); for
+    /// benchmarks that must time cold lookups.
+    pub fn clear_cache(&self) {
+        if let Ok(mut cache) = self.near_cache.lock() {
+            cache.clear();
+        }
+    }
+
+    fn near_uncached(&self, q: &str, max_edits: u32) -> Vec<NearWord> {
+        let q = q.to_string();
         let mut d = max_edits;
         let lev = loop {
             match Levenshtein::new(&q, d) {
@@ -346,7 +382,12 @@ impl Lexicon {
             .to_string();
         let map = Map::new(bytes[30 + n..].to_vec())
             .map_err(|e| fail(format!("a damaged word map ({e})")))?;
-        Ok(Lexicon { map, total, lang })
+        Ok(Lexicon {
+            map,
+            total,
+            lang,
+            near_cache: Mutex::default(),
+        })
     }
 
     /// Load a lexicon file.
