@@ -29,11 +29,14 @@
 //!
 //! The four builtin languages' word lists (`lexicons/<lang>/words.txt`,
 //! made from wordfreq data by `scripts/make_wordlists.py`) are embedded in
-//! the binary as text and compiled when first asked for: parsing 40,000
-//! lines and building the fst takes a few tens of milliseconds (see
-//! docs/benchmarks.md, "Decoder"), far below a network forward pass, and it
-//! keeps one source of truth in the repository instead of a binary file that
-//! can fall out of step with it.
+//! the binary as text and compiled when [`Lexicon::builtin`] is called:
+//! parsing 40,000 lines and building the fst takes about 0.1 s on the
+//! project machine (see docs/benchmarks.md, "Decoder"), once per process and
+//! about what the network needs for a few seconds of recording. That keeps
+//! one source of truth in the repository (the text list, reviewable in a
+//! diff) instead of a binary file that can fall out of step with it; a user
+//! who decodes many short files in separate processes can build the `.lex`
+//! once with `tactread lexicon build` and pass it instead.
 
 mod rescore;
 
