@@ -17,10 +17,12 @@
 //! | --- | --- |
 //! | cells, Unicode patterns, code tables | [`braille`] |
 //! | frames files and manifests | [`recording`] |
+//! | baseline, scale, resampling by position or time | [`prep`] |
 //! | GRU network, output head, CTC loss, Adam | [`net`] |
 //! | beam search, character hypotheses | [`decode`] |
 //! | word lists, fst lexicons, word rescoring | [`lexicon`] |
 //! | simulated recordings from text | [`simulate`] |
+//! | batching, training loop, checkpoints | [`train`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -37,9 +39,11 @@ mod error;
 pub mod lexicon;
 pub mod metrics;
 pub mod net;
+pub mod prep;
 pub mod recording;
 pub mod report;
 pub mod simulate;
+pub mod train;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};
 pub use error::{Error, Location, Result};

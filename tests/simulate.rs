@@ -594,3 +594,83 @@ fn cli_dataset_reads_back_and_is_parallel_safe() {
     );
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// demo-data/ is exactly what the command in demo-data/README.md writes.
+#[test]
+fn demo_data_matches_its_command() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let readme = std::fs::read_to_string(root.join("demo-data/README.md")).unwrap();
+    assert!(readme.contains(
+        "simulate dataset --lines 16 --lang all --split 0.5,0.25,0.25 \\\n    --rate 100 --speed 15..25 --seed 2024 --out demo-data --force"
+    ));
+    let dir = temp_dir("demo");
+    let o = tactread(
+        &[
+            "simulate",
+            "dataset",
+            "--lines",
+            "16",
+            "--lang",
+            "all",
+            "--split",
+            "0.5,0.25,0.25",
+            "--rate",
+            "100",
+            "--speed",
+            "15..25",
+            "--seed",
+            "2024",
+            "--out",
+            "demo-data",
+        ],
+        &dir,
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let ours = Dataset::open(&root.join("demo-data")).unwrap();
+    let fresh = Dataset::open(&dir.join("demo-data")).unwrap();
+    assert_eq!(ours.index(), fresh.index());
+    let stale = "differs from what the command writes now: if the change is intended, rerun the command in demo-data/README.md";
+    for e in ours.entries() {
+        let rec = ours.load(e).unwrap();
+        let now = fresh.load(e).unwrap();
+        assert_eq!(rec.manifest.text.as_deref(), Some(e.text.as_str()));
+        assert_eq!(rec.time_s, now.time_s, "{}: time {stale}", e.manifest);
+        // Other platforms' maths libraries may differ in the last bit, which
+        // can move a value across an ADC step: allow one count.
+        let worst = (&rec.frames - &now.frames)
+            .iter()
+            .fold(0f32, |m, d| m.max(d.abs()));
+        assert!(
+            worst <= 1.0,
+            "{}: frames {stale} (by {worst} counts)",
+            e.manifest
+        );
+        // On the platform that made it, the files are identical byte for byte.
+        if cfg!(all(target_os = "linux", target_arch = "x86_64")) {
+            for file in [e.manifest.clone(), e.manifest.replace(".json", ".csv")] {
+                assert!(
+                    std::fs::read(root.join("demo-data").join(&file)).unwrap()
+                        == std::fs::read(dir.join("demo-data").join(&file)).unwrap(),
+                    "demo-data/{file} {stale}"
+                );
+            }
+        }
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// The word "dataset" can be embossed as the help says.
+#[test]
+fn cli_text_dataset_after_double_dash() {
+    let dir = temp_dir("word");
+    let o = tactread(
+        &[
+            "simulate", "--rate", "100", "--out", "x.json", "--", "dataset",
+        ],
+        &dir,
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let rec = Recording::load(&dir.join("x.json")).unwrap();
+    assert_eq!(rec.manifest.text.as_deref(), Some("dataset"));
+    let _ = std::fs::remove_dir_all(&dir);
+}

@@ -6,9 +6,11 @@ use clap::{Parser, Subcommand};
 use tactread::Result;
 
 mod cells;
+mod compare;
 mod demo;
 mod inspect;
 mod lexicon;
+mod show;
 mod simulate;
 
 /// Read braille by touch from tactile sensor recordings.
@@ -31,6 +33,10 @@ enum Command {
     Inspect(inspect::Args),
     /// Simulate tactile recordings of braille text, one or a whole dataset.
     Simulate(Box<simulate::Args>),
+    /// Compare two metric files of the same test set, with paired bootstrap intervals.
+    Compare(compare::Args),
+    /// Draw one recording's taxel signals with its ground-truth cells as an SVG file.
+    Show(show::Args),
 }
 
 /// Run the parsed command line.
@@ -41,5 +47,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Cells(args) => cells::run(args),
         Command::Inspect(args) => inspect::run(args),
         Command::Simulate(args) => simulate::run(*args),
+        Command::Compare(args) => compare::run(args),
+        Command::Show(args) => show::run(args),
     }
 }

@@ -24,7 +24,7 @@ use tactread::{CodeTable, Error, Location, Result};
 #[command(
     args_conflicts_with_subcommands = true,
     subcommand_negates_reqs = true,
-    after_help = "Examples:\n  tactread simulate \"Ferry to Tarnholm at 9.15\" --out ferry.json\n  tactread simulate --text-file sign.txt --lang de --sensor pad4x3 --preset hard --out sign.json\n  tactread simulate dataset --lines 400 --speed 8..40 --out sim-data\n\nTo emboss the word \"dataset\" itself, write `tactread simulate -- dataset --out x.json`."
+    after_help = "Examples:\n  tactread simulate \"Ferry to Tarnholm at 9.15\" --out ferry.json\n  tactread simulate --text-file sign.txt --lang de --sensor pad4x3 --preset hard --out sign.json\n  tactread simulate dataset --lines 400 --speed 8..40 --out sim-data\n\nTo emboss the word \"dataset\" itself, write `tactread simulate --out x.json -- dataset`."
 )]
 pub struct Args {
     #[command(subcommand)]

@@ -299,28 +299,40 @@ impl Comparison {
                 "B better"
             );
             for d in &set.differences {
-                let scale = if d.metric == Metric::CalibrationError {
-                    1.0
-                } else {
-                    100.0
+                // Accuracies in percent (differences in percentage points),
+                // the calibration error as a plain number.
+                let ece = d.metric == Metric::CalibrationError;
+                let v = |x: f64| {
+                    if ece {
+                        format!("{x:.4}")
+                    } else {
+                        format!("{:.2}%", x * 100.0)
+                    }
                 };
-                let unit = if d.metric == Metric::CalibrationError {
-                    ""
-                } else {
-                    "%"
+                let dv = |x: f64| {
+                    if ece {
+                        format!("{x:+.4}")
+                    } else {
+                        format!("{:+.2}", x * 100.0)
+                    }
                 };
                 let _ = writeln!(
                     out,
-                    "  {:<28} {:>7.2}{unit} {:>7.2}{unit} {:>+7.2}{unit}  [{:>+7.2}, {:>+7.2}] {:>8.1}%",
+                    "  {:<28} {:>8} {:>8} {:>8}  {:<19} {:>8.1}%",
                     d.metric.label(),
-                    d.a * scale,
-                    d.b * scale,
-                    d.difference * scale,
-                    d.low * scale,
-                    d.high * scale,
+                    v(d.a),
+                    v(d.b),
+                    dv(d.difference),
+                    format!("[{}, {}]", dv(d.low), dv(d.high)),
                     d.share_b_better * 100.0
                 );
             }
+        }
+        if !self.sets.is_empty() {
+            let _ = writeln!(
+                out,
+                "\nB - A of accuracies in percentage points; \"B better\": share of resamples in which B beats A."
+            );
         }
         out
     }

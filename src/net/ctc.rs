@@ -21,17 +21,14 @@
 
 use ndarray::{Array2, ArrayView2};
 
-/// log(e^a + e^b), with -inf handled.
+/// log(e^a + e^b + e^c) with one logarithm, -inf handled.
 #[inline]
-fn lse(a: f64, b: f64) -> f64 {
-    if a == f64::NEG_INFINITY {
-        return b;
+fn lse3(a: f64, b: f64, c: f64) -> f64 {
+    let m = a.max(b).max(c);
+    if m == f64::NEG_INFINITY {
+        return m;
     }
-    if b == f64::NEG_INFINITY {
-        return a;
-    }
-    let m = a.max(b);
-    m + ((a - m).exp() + (b - m).exp()).ln()
+    m + ((a - m).exp() + (b - m).exp() + (c - m).exp()).ln()
 }
 
 /// The CTC loss of one sequence and its gradient.
@@ -78,20 +75,23 @@ pub fn ctc_loss(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> O
     }
     for t in 1..t_len {
         for s in 0..s_len {
-            let mut a = alpha[[t - 1, s]];
-            if s >= 1 {
-                a = lse(a, alpha[[t - 1, s - 1]]);
-            }
-            if skip(s) {
-                a = lse(a, alpha[[t - 1, s - 2]]);
-            }
+            let a = lse3(
+                alpha[[t - 1, s]],
+                if s >= 1 { alpha[[t - 1, s - 1]] } else { ninf },
+                if skip(s) { alpha[[t - 1, s - 2]] } else { ninf },
+            );
             alpha[[t, s]] = if a == ninf { ninf } else { a + y(t, s) };
         }
     }
-    let mut log_p = alpha[[t_len - 1, s_len - 1]];
-    if s_len > 1 {
-        log_p = lse(log_p, alpha[[t_len - 1, s_len - 2]]);
-    }
+    let log_p = if s_len > 1 {
+        lse3(
+            alpha[[t_len - 1, s_len - 1]],
+            alpha[[t_len - 1, s_len - 2]],
+            ninf,
+        )
+    } else {
+        alpha[[t_len - 1, s_len - 1]]
+    };
     if !log_p.is_finite() {
         return None;
     }
@@ -103,14 +103,19 @@ pub fn ctc_loss(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> O
     }
     for t in (0..t_len - 1).rev() {
         for s in 0..s_len {
-            let mut b = beta[[t + 1, s]] + y(t + 1, s);
-            if s + 1 < s_len {
-                b = lse(b, beta[[t + 1, s + 1]] + y(t + 1, s + 1));
-            }
-            if s + 2 < s_len && skip(s + 2) {
-                b = lse(b, beta[[t + 1, s + 2]] + y(t + 1, s + 2));
-            }
-            beta[[t, s]] = b;
+            beta[[t, s]] = lse3(
+                beta[[t + 1, s]] + y(t + 1, s),
+                if s + 1 < s_len {
+                    beta[[t + 1, s + 1]] + y(t + 1, s + 1)
+                } else {
+                    ninf
+                },
+                if s + 2 < s_len && skip(s + 2) {
+                    beta[[t + 1, s + 2]] + y(t + 1, s + 2)
+                } else {
+                    ninf
+                },
+            );
         }
     }
 

@@ -34,7 +34,7 @@
 //! time step are a prefix of the batch, so each recurrent GEMM only covers
 //! rows that are still running.
 
-use super::kernels::{self, gemm, gemv, multiversion};
+use super::kernels::{self, gemm, gemm_rows, gemv, multiversion};
 use crate::{Error, Result};
 use ndarray::{s, Array1, Array2, Array3, ArrayView2, ArrayView3, Axis};
 use rand::Rng;
@@ -204,7 +204,6 @@ impl GruStack {
 
     /// Checks that the parameter arrays agree with the configuration (for
     /// stacks read from a file).
-    #[allow(dead_code)] // used by the model file
     pub(crate) fn check_shapes(&self) -> std::result::Result<(), String> {
         let c = &self.config;
         if self.cells.len() != c.layers * c.directions() {
@@ -276,6 +275,66 @@ impl GruStack {
         self.run(x, lengths, false).0
     }
 
+    /// Inference over one sequence on the batch-1 path: `x` `[T, inputs]`
+    /// → `[T, D * H]`. Layer by layer; the input projection is one GEMM
+    /// per block of 256 frames (kept in cache) and the recurrence runs on
+    /// the matrix-vector kernel. Same numbers as [`Self::forward`] with
+    /// `B = 1` up to rounding.
+    pub fn forward_one(&self, x: ArrayView2<f32>) -> Array2<f32> {
+        const BLOCK: usize = 256;
+        let (t_len, f) = x.dim();
+        assert_eq!(f, self.config.inputs, "GRU input features");
+        let dirs = self.config.directions();
+        let h = self.config.hidden;
+        let width = dirs * h;
+        let mut input = x.as_standard_layout().into_owned();
+        let mut xi = Array2::<f32>::zeros((BLOCK, 3 * h));
+        let mut gh = vec![0.0f32; 3 * h];
+        let mut hcur = vec![0.0f32; h];
+        let mut cache = vec![0.0f32; 4 * h];
+        for l in 0..self.config.layers {
+            let mut out = Array2::<f32>::zeros((t_len, width));
+            for d in 0..dirs {
+                let cell = &self.cells[l * dirs + d];
+                let w_h = slice(&cell.w_h);
+                let b_h = cell.b_h.as_slice().expect("contiguous");
+                hcur.fill(0.0);
+                let n_blocks = t_len.div_ceil(BLOCK);
+                for blk in 0..n_blocks {
+                    let blk = if d == 1 { n_blocks - 1 - blk } else { blk };
+                    let t0 = blk * BLOCK;
+                    let n = BLOCK.min(t_len - t0);
+                    let mut xb = xi.slice_mut(s![..n, ..]);
+                    xb.assign(&cell.b_i.broadcast((n, 3 * h)).expect("bias broadcasts"));
+                    gemm(
+                        input.slice(s![t0..t0 + n, ..]),
+                        cell.w_i.view(),
+                        1.0,
+                        &mut xb,
+                    );
+                    let xs = xi.as_slice().expect("fresh array");
+                    let os = out.as_slice_mut().expect("fresh array");
+                    for i in 0..n {
+                        let i = if d == 1 { n - 1 - i } else { i };
+                        let t = t0 + i;
+                        gemv(&hcur, w_h, b_h, &mut gh);
+                        let o = &mut os[t * width + d * h..t * width + (d + 1) * h];
+                        gate_forward_row(
+                            &xs[i * 3 * h..(i + 1) * 3 * h],
+                            &gh,
+                            &hcur,
+                            o,
+                            &mut cache,
+                        );
+                        hcur.copy_from_slice(o);
+                    }
+                }
+            }
+            input = out;
+        }
+        input
+    }
+
     /// The training forward pass: like [`Self::forward`] but keeps what
     /// back-propagation needs.
     pub(crate) fn forward_train(&self, x: ArrayView3<f32>, lengths: &[usize]) -> GruTape {
@@ -342,20 +401,22 @@ impl GruStack {
     /// `tape` from [`Self::forward_train`]; `d_out`: gradient of the loss
     /// w.r.t. the top layer's output, `[T, B, D * H]` (values past a
     /// sequence's length are ignored). Adds the parameter gradients to
-    /// `grad` and returns the gradient w.r.t. the input, `[T, B, inputs]`
-    /// (zero past each length).
+    /// `grad` and, when `input_grad`, returns the gradient w.r.t. the
+    /// input, `[T, B, inputs]` (zero past each length).
     pub(crate) fn backward(
         &self,
         tape: &GruTape,
         d_out: &Array3<f32>,
         grad: &mut GruStack,
-    ) -> Array3<f32> {
+        input_grad: bool,
+    ) -> Option<Array3<f32>> {
         let (t_len, b, _) = d_out.dim();
         let dirs = self.config.directions();
         let mut d_top = d_out.clone();
         for l in (0..self.config.layers).rev() {
             let n_in = self.config.layer_inputs(l);
-            let mut d_in = Array2::<f32>::zeros((t_len * b, n_in));
+            let want = l > 0 || input_grad;
+            let mut d_in = Array2::<f32>::zeros((if want { t_len * b } else { 0 }, n_in));
             for d in 0..dirs {
                 let i = l * dirs + d;
                 backward_cell(
@@ -368,14 +429,17 @@ impl GruStack {
                     d == 1,
                     &tape.active,
                     &mut grad.cells[i],
-                    &mut d_in,
+                    want.then_some(&mut d_in),
                 );
+            }
+            if !want {
+                return None;
             }
             d_top = d_in
                 .into_shape_with_order((t_len, b, n_in))
                 .expect("standard layout reshapes");
         }
-        d_top
+        Some(d_top)
     }
 
     /// A zero state for streaming with [`Self::step`]. Fails with
@@ -522,7 +586,16 @@ fn run_cell(
         } else {
             let mut g = gh.slice_mut(s![..na, ..]);
             g.assign(&cell.b_h.broadcast((na, 3 * h)).expect("bias broadcasts"));
-            gemm(hprev.slice(s![..na, ..]), cell.w_h.view(), 1.0, &mut g);
+            gemm_rows(
+                na,
+                h,
+                3 * h,
+                hprev.as_slice().expect("fresh array"),
+                h,
+                slice(&cell.w_h),
+                gh.as_slice_mut().expect("fresh array"),
+                3 * h,
+            );
         }
         let hp = hprev.as_slice().expect("fresh array");
         let ghs = gh.as_slice().expect("fresh array");
@@ -553,7 +626,8 @@ fn run_cell(
 }
 
 /// Back-propagation through one direction of one layer. Adds parameter
-/// gradients to `grad` and the input gradient to `d_in` `[T * B, n_in]`.
+/// gradients to `grad` and the input gradient to `d_in` `[T * B, n_in]`
+/// when given.
 #[allow(clippy::too_many_arguments)]
 fn backward_cell(
     cell: &GruCell,
@@ -565,7 +639,7 @@ fn backward_cell(
     reverse: bool,
     active: &[usize],
     grad: &mut GruCell,
-    d_in: &mut Array2<f32>,
+    d_in: Option<&mut Array2<f32>>,
 ) {
     let h = cell.hidden();
     let (t_len, b, width) = out.dim();
@@ -575,7 +649,8 @@ fn backward_cell(
     let mut hprev = Array2::<f32>::zeros((b, h));
     let mut carry = Array2::<f32>::zeros((b, h));
     let mut dh = vec![0.0f32; h];
-    let w_h_t = cell.w_h.t();
+    // W_h^T `[3H, H]`, row-major, for the per-step products.
+    let w_h_t = cell.w_h.t().as_standard_layout().into_owned();
     for step in 0..t_len {
         // Reverse of the forward processing order.
         let t = if reverse { step } else { t_len - 1 - step };
@@ -618,18 +693,24 @@ fn backward_cell(
             }
         }
         // carry (= dh ⊙ z so far) += dgh_t W_h^T
-        gemm(
-            dgh.slice(s![t * b..t * b + na, ..]),
-            w_h_t,
-            1.0,
-            &mut carry.slice_mut(s![..na, ..]),
+        gemm_rows(
+            na,
+            3 * h,
+            h,
+            &dgh.as_slice().expect("fresh array")[t * b * 3 * h..],
+            3 * h,
+            slice(&w_h_t),
+            carry.as_slice_mut().expect("fresh array"),
+            h,
         );
     }
     gemm(hprev_all.t(), dgh.view(), 1.0, &mut grad.w_h.view_mut());
     grad.b_h += &dgh.sum_axis(Axis(0));
     grad.b_i += &dxi.sum_axis(Axis(0));
     gemm(layer_in.t(), dxi.view(), 1.0, &mut grad.w_i.view_mut());
-    gemm(dxi.view(), cell.w_i.t(), 1.0, &mut d_in.view_mut());
+    if let Some(d_in) = d_in {
+        gemm(dxi.view(), cell.w_i.t(), 1.0, &mut d_in.view_mut());
+    }
 }
 
 /// The gate arithmetic of one step of one sequence.
@@ -807,6 +888,7 @@ mod tests {
         let s = stack(4, 70, 2, false, 3);
         let x = random3(9, 1, 4, 4);
         let batched = s.forward(x.view(), &[9]);
+        let one = s.forward_one(x.slice(s![.., 0, ..]));
         let x2 = random3(9, 2, 4, 4);
         let mut x2 = x2;
         x2.slice_mut(s![.., 0, ..]).assign(&x.slice(s![.., 0, ..]));
@@ -818,6 +900,7 @@ mod tests {
             for j in 0..70 {
                 // GEMV (FMA) and GEMM round differently: a few ulps.
                 assert_relative_eq!(o[j], batched[[t, 0, j]], epsilon = 1e-5);
+                assert_relative_eq!(one[[t, j]], batched[[t, 0, j]], epsilon = 1e-5);
                 assert_relative_eq!(two[[t, 0, j]], batched[[t, 0, j]], epsilon = 1e-5);
             }
         }
@@ -843,7 +926,7 @@ mod tests {
         };
         let tape = s.forward_train(x.view(), &lengths);
         let mut grad = GruStack::zeros(s.config);
-        let dx = s.backward(&tape, &c, &mut grad);
+        let dx = s.backward(&tape, &c, &mut grad, true).unwrap();
         let eps = 1e-2f32;
         let check = |analytic: f32, numeric: f64, what: &str| {
             let tol = 2e-3 + 1e-2 * numeric.abs();
@@ -895,6 +978,20 @@ mod tests {
     #[test]
     fn gradients_bidirectional_with_masks() {
         check_gradients(true);
+    }
+
+    #[test]
+    fn forward_one_matches_batched_bidirectional_over_blocks() {
+        // 600 frames span three blocks of 256.
+        let s = stack(4, 8, 2, true, 5);
+        let x = random3(600, 1, 4, 6);
+        let batched = s.forward(x.view(), &[600]);
+        let one = s.forward_one(x.slice(s![.., 0, ..]));
+        for t in 0..600 {
+            for j in 0..16 {
+                assert_relative_eq!(one[[t, j]], batched[[t, 0, j]], epsilon = 1e-5);
+            }
+        }
     }
 
     #[test]

@@ -10,17 +10,21 @@
 //! | `ctc.rs` | CTC loss and gradient, forward-backward in log space |
 //! | `optim.rs` | Adam, gradient clipping, learning-rate schedule |
 //! | `network.rs` | `Network`: GRU + head, loss and gradient over threads |
+//! | `model.rs` | the model file: format tag, architecture, preprocessing, parameters |
 //! | `kernels.rs` | fast exp/sigmoid/tanh, batch-1 matrix-vector kernel |
 
 mod ctc;
 mod gru;
 mod head;
 pub(crate) mod kernels;
+mod model;
 mod network;
 mod optim;
 
 pub use ctc::{ctc_loss, CtcLoss};
 pub use gru::{GruConfig, GruStack, GruState};
 pub use head::{dot_probs, pattern_log_probs, BLANK, N_CLASSES, N_LOGITS};
+pub(crate) use model::write_atomic;
+pub use model::{Architecture, Model, SensorSummary, TrainingSummary, MODEL_FORMAT, MODEL_VERSION};
 pub use network::{BatchLoss, Network, StreamState};
 pub use optim::{clip_global_norm, global_norm, Adam, AdamConfig, LrSchedule};

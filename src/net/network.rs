@@ -94,7 +94,6 @@ impl Network {
 
     /// Checks parameter shapes against the configuration (for networks
     /// read from a file); the message says what disagrees.
-    #[allow(dead_code)] // used by the model file
     pub(crate) fn check_shapes(&self) -> std::result::Result<(), String> {
         self.gru.check_shapes()?;
         let n = self.gru.config().outputs();
@@ -134,13 +133,8 @@ impl Network {
     /// recurrence): `x` `[T, inputs]` → `[T, 7]`.
     pub fn logits_one(&self, x: ArrayView2<f32>) -> Result<Array2<f32>> {
         self.check_frames(&x, 0)?;
-        let t = x.nrows();
-        let x3 = x.insert_axis(ndarray::Axis(1));
-        let y = self.gru.forward(x3, &[t]);
-        let y2 = y
-            .into_shape_with_order((t, self.gru.config().outputs()))
-            .expect("standard layout reshapes");
-        Ok(self.head.logits(y2.view()))
+        let y = self.gru.forward_one(x);
+        Ok(self.head.logits(y.view()))
     }
 
     /// Logits of a batch of sequences of any lengths, each `[T_i, inputs]`
@@ -309,7 +303,7 @@ impl Network {
         let d_top = d_top
             .into_shape_with_order((t_len, b, width))
             .expect("standard layout reshapes");
-        self.gru.backward(&tape, &d_top, &mut grads.gru);
+        self.gru.backward(&tape, &d_top, &mut grads.gru, false);
         (nll, skipped, grads)
     }
 

@@ -412,7 +412,17 @@ pub(crate) fn sample_path(
                         p += enc.noise_mm * normal(rng);
                     }
                     if enc.resolution_mm > 0.0 {
-                        p = (p / enc.resolution_mm).round() * enc.resolution_mm;
+                        let ticks = (p / enc.resolution_mm).round();
+                        // Dividing by a whole number of ticks per mm gives
+                        // the nearest double to the decimal reading (0.005
+                        // mm -> 200 per mm): files show -5.725, not
+                        // -5.7250000000000005.
+                        let per_mm = (1.0 / enc.resolution_mm).round();
+                        p = if (per_mm * enc.resolution_mm - 1.0).abs() < 1e-12 {
+                            ticks / per_mm
+                        } else {
+                            ticks * enc.resolution_mm
+                        };
                     }
                     p
                 })

@@ -56,7 +56,7 @@ pub use sensor::{
 
 use crate::braille::{cells_to_unicode, Cell, CodeTable};
 use crate::error::{Error, Result};
-use crate::recording::{Manifest, Recording, SensorInfo, MANIFEST_FORMAT, MANIFEST_VERSION};
+use crate::recording::{Manifest, Recording, SensorInfo};
 use ndarray::Array2;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -135,12 +135,13 @@ pub fn encode_line(text: &str, table: &CodeTable) -> Result<Vec<Cell>> {
 }
 
 /// The seed of recording `index` of a dataset made with `dataset_seed`
-/// (SplitMix64 finaliser over both; Steele, Lea and Flood 2014).
+/// (SplitMix64 finaliser over both; Steele, Lea and Flood 2014), cut to 53
+/// bits so that every JSON reader holds it exactly.
 pub fn recording_seed(dataset_seed: u64, index: u64) -> u64 {
     let mut z = dataset_seed ^ index.wrapping_add(1).wrapping_mul(0x9E37_79B9_7F4A_7C15);
     z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
     z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
+    (z ^ (z >> 31)) >> 11
 }
 
 const STREAM_PATH: u64 = 1;
@@ -215,7 +216,7 @@ impl Simulator {
     /// in the sensor's units, and a manifest whose `tags` record the
     /// simulation (see `docs/simulator.md`). The manifest's `text` and
     /// `lang` are left empty (the caller knows them; see
-    /// [`Simulator::simulate_text`]) and `frames` names `frames.csv` until
+    /// [`Simulator::simulate_text`]) and `frames` is empty until
     /// [`Recording::save`] sets it.
     ///
     /// Fails on an empty line and on a line that would exceed
@@ -313,7 +314,8 @@ impl Simulator {
         tags.insert("speed_mm_s".into(), json!(k.speed_mm_s));
         tags.insert("force_n".into(), json!(k.force_n));
         tags.insert("dot_spacing_mm".into(), json!(cfg.page.dot_spacing_mm));
-        tags.insert("cell_spacing_mm".into(), json!(cfg.page.cell_spacing_mm));
+        tags.insert("cell_pitch_mm".into(), json!(cfg.page.cell_spacing_mm));
+        tags.insert("first_cell_mm".into(), json!(cfg.page.dot_spacing_mm / 2.0));
         tags.insert("dot_height_mm".into(), json!(cfg.page.dot_height_mm));
         tags.insert("lateral_offset_mm".into(), json!(path.offset_mm));
         tags.insert(
@@ -328,21 +330,14 @@ impl Simulator {
         );
         tags.insert("duration_s".into(), json!(duration));
         let manifest = Manifest {
-            format: MANIFEST_FORMAT.to_string(),
-            version: MANIFEST_VERSION,
-            frames: "frames.csv".to_string(),
             sensor: SensorInfo {
                 name: Some(sensor.name.clone()),
-                taxels: n_taxels,
                 positions_mm: Some(self.taxels.clone()),
-                sample_rate_hz: rate,
                 units: sensor.units().to_string(),
+                ..SensorInfo::new(n_taxels, rate)
             },
-            npy_columns: None,
-            text: None,
-            lang: None,
             notes: Some(format!(
-                "simulated: preset {}, page {}, sensor {}, {} mm/s, {} N; position is the sensor's middle along the line, 0 at the first cell's left dot column",
+                "simulated: preset {}, page {}, sensor {}, {:.1} mm/s, {} N; position is the sensor's middle along the line, 0 at the first cell's left dot column",
                 cfg.preset.name(),
                 cfg.page.name,
                 sensor.name,
@@ -350,6 +345,7 @@ impl Simulator {
                 k.force_n
             )),
             tags,
+            ..Manifest::new(SensorInfo::new(n_taxels, rate))
         };
         Ok(Recording {
             manifest,

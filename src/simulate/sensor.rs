@@ -375,7 +375,7 @@ impl SensorSpec {
                         "rows and cols must both be at least 1".into(),
                     );
                 }
-                if !in_range(*pitch_mm, 0.01, 50.0) || *pitch_mm == 0.0 {
+                if !in_range(*pitch_mm, 0.01, 50.0) {
                     return bad(
                         "layout.pitch_mm",
                         format!("is {pitch_mm}: give a pitch between 0.01 and 50 mm"),

@@ -1,0 +1,718 @@
+//! Training: mini-batches bucketed by length, Adam with gradient clipping
+//! and a warm-up + cosine schedule, validation every epoch with greedy CTC
+//! decoding (dot and character accuracy), early stopping, the best model
+//! kept, atomic checkpoints and resuming.
+//!
+//! Determinism: for a given seed and thread count the run is reproducible
+//! bit for bit. The batch order of epoch `e` comes from a ChaCha8 stream
+//! seeded with `(seed, e)`, gradients are summed over `threads` shards in
+//! a fixed order (see [`Network::loss_and_grad`]), and validation results
+//! do not depend on thread timing. A resumed run continues exactly as the
+//! uninterrupted run would have.
+
+mod greedy;
+
+pub(crate) use greedy::{greedy_cells, score};
+
+use crate::braille::CodeTable;
+use crate::net::{
+    Adam, AdamConfig, GruConfig, LrSchedule, Model, Network, SensorSummary, TrainingSummary,
+};
+use crate::prep::{Prep, PrepConfig};
+use crate::{Cell, Error, Result};
+use ndarray::Array2;
+use rand::seq::SliceRandom;
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+use std::ops::ControlFlow;
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+/// Training options. Defaults in brackets.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TrainConfig {
+    /// Hidden units per direction [128].
+    pub hidden: usize,
+    /// GRU layers [2].
+    pub layers: usize,
+    /// Bidirectional layers (offline only) [false].
+    pub bidirectional: bool,
+    /// Maximum epochs [40].
+    pub epochs: usize,
+    /// Peak learning rate [3e-3].
+    pub lr: f32,
+    /// Sequences per mini-batch [32].
+    pub batch: usize,
+    /// Random seed [1].
+    pub seed: u64,
+    /// Threads, also the number of gradient shards [2].
+    pub threads: usize,
+    /// Global gradient-norm clip [5.0].
+    pub clip: f32,
+    /// Stop after this many epochs without a better validation score [6].
+    pub patience: usize,
+    /// Stop starting new epochs after this many minutes [none].
+    pub max_minutes: Option<f64>,
+    /// Position grid step in mm [0.5].
+    pub step_mm: f64,
+    /// Time grid rate in Hz for recordings without positions [40].
+    pub rate_hz: f64,
+    /// Keep every k-th grid sample [1].
+    pub decimate: usize,
+}
+
+impl Default for TrainConfig {
+    fn default() -> Self {
+        let p = PrepConfig::default();
+        TrainConfig {
+            hidden: 128,
+            layers: 2,
+            bidirectional: false,
+            epochs: 40,
+            lr: 3e-3,
+            batch: 32,
+            seed: 1,
+            threads: 2,
+            clip: 5.0,
+            patience: 6,
+            max_minutes: None,
+            step_mm: p.step_mm,
+            rate_hz: p.rate_hz,
+            decimate: p.decimate,
+        }
+    }
+}
+
+impl TrainConfig {
+    /// Checks every option before any work starts.
+    pub fn check(&self) -> Result<()> {
+        self.prep_config().check()?;
+        let positive = [
+            ("hidden", self.hidden),
+            ("layers", self.layers),
+            ("epochs", self.epochs),
+            ("batch", self.batch),
+            ("threads", self.threads),
+            ("patience", self.patience),
+        ];
+        for (name, v) in positive {
+            if v == 0 {
+                return Err(Error::config(name, "must be at least 1"));
+            }
+        }
+        if !(self.lr.is_finite() && self.lr > 0.0) {
+            return Err(Error::config("lr", "must be a positive number, e.g. 3e-3"));
+        }
+        if !(self.clip.is_finite() && self.clip > 0.0) {
+            return Err(Error::config("clip", "must be a positive number, e.g. 5"));
+        }
+        if let Some(m) = self.max_minutes {
+            if !(m.is_finite() && m > 0.0) {
+                return Err(Error::config(
+                    "max-minutes",
+                    "must be a positive number of minutes",
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    fn prep_config(&self) -> PrepConfig {
+        PrepConfig {
+            step_mm: self.step_mm,
+            rate_hz: self.rate_hz,
+            decimate: self.decimate,
+        }
+    }
+}
+
+/// One labelled recording for training or validation.
+#[derive(Debug, Clone)]
+pub struct Example {
+    /// Name used in messages (e.g. the manifest path).
+    pub name: String,
+    /// Raw recording.
+    pub recording: crate::recording::Recording,
+    /// Ground-truth text.
+    pub text: String,
+}
+
+/// A preprocessed example.
+struct Prepared {
+    x: Array2<f32>,
+    cells: Vec<usize>,
+    reference: Vec<Cell>,
+    text: String,
+}
+
+/// Validation figures of one epoch.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Validation {
+    /// Mean CTC loss per cell.
+    pub loss: f64,
+    /// Dot accuracy over aligned cell pairs (greedy decoding).
+    pub dot_accuracy: f64,
+    /// Character accuracy, 1 - character edit distance / reference length.
+    pub char_accuracy: f64,
+}
+
+impl Validation {
+    fn better_than(&self, other: &Validation) -> bool {
+        (self.char_accuracy, self.dot_accuracy, -self.loss)
+            > (other.char_accuracy, other.dot_accuracy, -other.loss)
+    }
+}
+
+/// What happens during training, for a progress display.
+pub enum Event<'a> {
+    /// Training starts: total planned batches.
+    Start {
+        /// Batches per epoch times epochs still to run.
+        batches: u64,
+        /// Batches already done (when resuming).
+        done: u64,
+    },
+    /// A batch was done.
+    Batch {
+        /// Its mean loss per cell.
+        loss: f64,
+        /// Training frames per second so far in this epoch.
+        frames_per_s: f64,
+    },
+    /// An epoch ended.
+    Epoch {
+        /// 1-based epoch.
+        epoch: usize,
+        /// Mean training loss per cell.
+        train_loss: f64,
+        /// Validation figures.
+        validation: &'a Validation,
+        /// Whether this is the best epoch so far (and was saved).
+        best: bool,
+    },
+}
+
+/// The checkpoint written after every epoch (`MODEL.ckpt` beside the
+/// model), enough to continue exactly.
+#[derive(Serialize, Deserialize)]
+struct Checkpoint {
+    format: String,
+    version: u32,
+    config: TrainConfig,
+    data_fingerprint: u64,
+    epoch: usize,
+    network: Network,
+    adam: Adam,
+    best: Option<(usize, Validation, f64)>,
+    stale: usize,
+    seconds: f64,
+}
+
+const CKPT_FORMAT: &str = "tactread-checkpoint";
+
+/// The checkpoint path of a model path: `MODEL.ckpt`.
+pub fn checkpoint_path(model: &Path) -> PathBuf {
+    let mut s = model.as_os_str().to_owned();
+    s.push(".ckpt");
+    PathBuf::from(s)
+}
+
+/// The result of [`train`].
+#[derive(Debug, Clone)]
+pub struct Outcome {
+    /// The best model (also written to the output path).
+    pub model: Model,
+    /// Validation figures per epoch run in this session.
+    pub history: Vec<Validation>,
+}
+
+fn fingerprint(train: &[Prepared], val: &[Prepared]) -> u64 {
+    // FNV-1a over sizes and targets: enough to notice other data on resume.
+    let mut h: u64 = 0xcbf29ce484222325;
+    let mut eat = |v: u64| {
+        h ^= v;
+        h = h.wrapping_mul(0x100000001b3);
+    };
+    for p in train.iter().chain(val) {
+        eat(p.x.nrows() as u64);
+        for &c in &p.cells {
+            eat(c as u64);
+        }
+    }
+    h
+}
+
+/// Trains a model on `train` examples, validating on `val`, and writes the
+/// best model to `out` (and a checkpoint to `MODEL.ckpt` after every
+/// epoch). With `resume`, continues from the checkpoint. `lang` is the
+/// language pack of every text; `data` names the dataset in the summary.
+/// `on_event` sees progress; returning `ControlFlow::Break` at an epoch's
+/// end stops the run there (its checkpoint is written first, so `resume`
+/// continues exactly).
+#[allow(clippy::too_many_arguments)]
+pub fn train(
+    config: &TrainConfig,
+    train: &[Example],
+    val: &[Example],
+    table: &CodeTable,
+    data: &str,
+    out: &Path,
+    resume: bool,
+    mut on_event: impl FnMut(Event) -> ControlFlow<()>,
+) -> Result<Outcome> {
+    config.check()?;
+    if train.is_empty() || val.is_empty() {
+        return Err(Error::config(
+            "data",
+            format!(
+                "training needs training and validation recordings (got {} and {})",
+                train.len(),
+                val.len()
+            ),
+        ));
+    }
+    let started = Instant::now();
+    let recs: Vec<&crate::recording::Recording> = train.iter().map(|e| &e.recording).collect();
+    let prep = Prep::fit(&config.prep_config(), &recs)?;
+    let prepare = |e: &Example| -> Result<Prepared> {
+        let reference = table.encode(&e.text).map_err(|err| {
+            Error::input(
+                crate::Location::file(&e.name).field("text"),
+                format!("the ground truth cannot be written in braille: {err}"),
+            )
+        })?;
+        let cells: Vec<usize> = reference
+            .iter()
+            .map(|c| {
+                if c.is_six_dot() {
+                    Ok(c.mask() as usize)
+                } else {
+                    Err(Error::input(
+                        crate::Location::file(&e.name).field("text"),
+                        "the text needs 8-dot cells; training reads six-dot braille only",
+                    ))
+                }
+            })
+            .collect::<Result<_>>()?;
+        let x = prep.apply(&e.recording, &e.name)?;
+        Ok(Prepared {
+            x,
+            cells,
+            reference,
+            text: e.text.clone(),
+        })
+    };
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(config.threads)
+        .build()
+        .map_err(|e| {
+            Error::config(
+                "threads",
+                format!("cannot start {} threads: {e}", config.threads),
+            )
+        })?;
+    let (train_p, val_p) = pool.install(|| -> Result<(Vec<Prepared>, Vec<Prepared>)> {
+        let t = train.par_iter().map(&prepare).collect::<Result<Vec<_>>>()?;
+        let v = val.par_iter().map(&prepare).collect::<Result<Vec<_>>>()?;
+        Ok((t, v))
+    })?;
+    let fp = fingerprint(&train_p, &val_p);
+
+    let gru = GruConfig {
+        inputs: prep.taxels,
+        hidden: config.hidden,
+        layers: config.layers,
+        bidirectional: config.bidirectional,
+    };
+    // Buckets: training sequences sorted by length, cut into batches.
+    let mut order: Vec<usize> = (0..train_p.len()).collect();
+    order.sort_by_key(|&i| (train_p[i].x.nrows(), i));
+    let batches: Vec<Vec<usize>> = order.chunks(config.batch).map(|c| c.to_vec()).collect();
+    let per_epoch = batches.len() as u64;
+    let total = per_epoch * config.epochs as u64;
+    let mut schedule = LrSchedule::new(config.lr, total);
+    schedule.warmup = schedule.warmup.min(total / 10 + 1);
+
+    let ckpt_path = checkpoint_path(out);
+    let mut net = Network::new(gru, config.seed)?;
+    let mut adam = Adam::new(AdamConfig::default(), &net.param_sizes());
+    let mut first_epoch = 0usize;
+    let mut best: Option<(usize, Validation, f64)> = None;
+    let mut stale = 0usize;
+    let mut seconds_before = 0.0;
+    if resume {
+        let text = std::fs::read_to_string(&ckpt_path)
+            .map_err(|e| Error::io("cannot read the checkpoint", &ckpt_path, e))?;
+        let ck: Checkpoint = serde_json::from_str(&text).map_err(|e| Error::Format {
+            path: ckpt_path.clone(),
+            expected: format!("{CKPT_FORMAT} version 1"),
+            found: format!("an unreadable file ({e})"),
+            hint: "start again without --resume".into(),
+        })?;
+        if ck.format != CKPT_FORMAT || ck.version != 1 {
+            return Err(Error::Format {
+                path: ckpt_path.clone(),
+                expected: format!("{CKPT_FORMAT} version 1"),
+                found: format!("{} version {}", ck.format, ck.version),
+                hint: "start again without --resume".into(),
+            });
+        }
+        let same = TrainConfig {
+            epochs: config.epochs,
+            max_minutes: config.max_minutes,
+            patience: config.patience,
+            ..ck.config.clone()
+        } == *config;
+        if !same || ck.data_fingerprint != fp || ck.network.config() != gru {
+            return Err(Error::Mismatch {
+                what: format!("training options or data of {}", ckpt_path.display()),
+                expected: "the options and dataset of the interrupted run".into(),
+                got: "different ones".into(),
+                hint: "resume with the same options and --data (only --epochs, --patience and \
+                       --max-minutes may change), or start again without --resume"
+                    .into(),
+            });
+        }
+        if !ck.adam.fits(&ck.network.param_sizes()) {
+            return Err(Error::config(
+                "resume",
+                "checkpoint optimiser state does not fit",
+            ));
+        }
+        net = ck.network;
+        adam = ck.adam;
+        first_epoch = ck.epoch;
+        best = ck.best;
+        stale = ck.stale;
+        seconds_before = ck.seconds;
+    }
+
+    let lang = table.lang().to_string();
+    let sensor = SensorSummary {
+        taxels: prep.taxels,
+        name: train[0].recording.manifest.sensor.name.clone(),
+    };
+    let summary_for = |epochs: usize, best: &(usize, Validation, f64), secs: f64| TrainingSummary {
+        data: data.to_string(),
+        train_recordings: train.len(),
+        validation_recordings: val.len(),
+        epochs,
+        best_epoch: best.0,
+        validation_dot_accuracy: best.1.dot_accuracy,
+        validation_char_accuracy: best.1.char_accuracy,
+        train_loss: best.2,
+        seconds: secs,
+        seed: config.seed,
+        threads: config.threads,
+        options: match serde_json::to_value(config) {
+            Ok(serde_json::Value::Object(m)) => m,
+            _ => Default::default(),
+        },
+    };
+
+    let mut history = Vec::new();
+    let mut best_model: Option<Model> = if resume && out.exists() {
+        Model::load(out).ok()
+    } else {
+        None
+    };
+    let _ = on_event(Event::Start {
+        batches: total,
+        done: first_epoch as u64 * per_epoch,
+    });
+    let train_views: Vec<_> = train_p.iter().map(|p| p.x.view()).collect();
+    let train_targets: Vec<&[usize]> = train_p.iter().map(|p| p.cells.as_slice()).collect();
+    let mut epoch = first_epoch;
+    while epoch < config.epochs && stale < config.patience {
+        if let Some(m) = config.max_minutes {
+            if started.elapsed().as_secs_f64() + seconds_before > m * 60.0 {
+                break;
+            }
+        }
+        let mut rng = ChaCha8Rng::seed_from_u64(config.seed);
+        rng.set_stream(epoch as u64 + 1);
+        let mut perm: Vec<usize> = (0..batches.len()).collect();
+        perm.shuffle(&mut rng);
+        let t_epoch = Instant::now();
+        let (mut nll, mut cells, mut frames) = (0.0f64, 0usize, 0usize);
+        for (k, &bi) in perm.iter().enumerate() {
+            let idx = &batches[bi];
+            let xs: Vec<_> = idx.iter().map(|&i| train_views[i]).collect();
+            let ts: Vec<&[usize]> = idx.iter().map(|&i| train_targets[i]).collect();
+            let mut r = pool.install(|| net.loss_and_grad(&xs, &ts, config.threads))?;
+            let step = epoch as u64 * per_epoch + k as u64;
+            net.apply_gradients(&mut r.grads, &mut adam, schedule.at(step), config.clip);
+            nll += r.loss * r.cells as f64;
+            cells += r.cells;
+            frames += r.frames;
+            let _ = on_event(Event::Batch {
+                loss: r.loss,
+                frames_per_s: frames as f64 / t_epoch.elapsed().as_secs_f64().max(1e-9),
+            });
+        }
+        let train_loss = nll / cells.max(1) as f64;
+        let v = pool.install(|| validate(&net, &val_p, table))?;
+        epoch += 1;
+        let is_best = best.as_ref().map_or(true, |(_, b, _)| v.better_than(b));
+        let secs = seconds_before + started.elapsed().as_secs_f64();
+        if is_best {
+            best = Some((epoch, v, train_loss));
+            stale = 0;
+            let m = Model::new(
+                net.clone(),
+                prep.clone(),
+                sensor.clone(),
+                lang.clone(),
+                summary_for(epoch, best.as_ref().expect("just set"), secs),
+            );
+            m.save(out)?;
+            best_model = Some(m);
+        } else {
+            stale += 1;
+        }
+        history.push(v);
+        let ck = Checkpoint {
+            format: CKPT_FORMAT.into(),
+            version: 1,
+            config: config.clone(),
+            data_fingerprint: fp,
+            epoch,
+            network: net.clone(),
+            adam: adam.clone(),
+            best,
+            stale,
+            seconds: secs,
+        };
+        let text = serde_json::to_string(&ck).expect("a checkpoint always serialises");
+        crate::net::write_atomic(&ckpt_path, text.as_bytes())?;
+        let flow = on_event(Event::Epoch {
+            epoch,
+            train_loss,
+            validation: &v,
+            best: is_best,
+        });
+        if flow.is_break() {
+            break;
+        }
+    }
+    let mut model = best_model.ok_or_else(|| {
+        Error::config(
+            "epochs",
+            "no epoch finished (the time limit was reached first): allow more time",
+        )
+    })?;
+    // Record the final epoch count and time in the summary of the best model.
+    if let Some(b) = &best {
+        model.training = summary_for(epoch, b, seconds_before + started.elapsed().as_secs_f64());
+        model.save(out)?;
+    }
+    Ok(Outcome { model, history })
+}
+
+/// Validation: loss and greedy-decoding accuracies over `val`.
+fn validate(net: &Network, val: &[Prepared], table: &CodeTable) -> Result<Validation> {
+    let per: Vec<(Vec<Cell>, f64, usize)> = val
+        .par_iter()
+        .map(|p| -> Result<(Vec<Cell>, f64, usize)> {
+            let z = net.logits_one(p.x.view())?;
+            let lp = crate::net::pattern_log_probs(z.view());
+            let loss = crate::net::ctc_loss(lp.view(), &p.cells, crate::net::BLANK)
+                .map_or(0.0, |r| r.loss);
+            Ok((greedy_cells(lp.view()), loss, p.cells.len()))
+        })
+        .collect::<Result<_>>()?;
+    let mut loss = 0.0;
+    let mut n_cells = 0;
+    let mut dots = (0u64, 0u64);
+    let mut chars = crate::metrics::EditCounts::default();
+    for ((hyp, l, n), p) in per.iter().zip(val) {
+        loss += l;
+        n_cells += n;
+        let (right, total, c) = score(&p.reference, hyp, &p.text, table);
+        dots.0 += right;
+        dots.1 += total;
+        chars.add(&c);
+    }
+    Ok(Validation {
+        loss: loss / n_cells.max(1) as f64,
+        dot_accuracy: if dots.1 > 0 {
+            dots.0 as f64 / dots.1 as f64
+        } else {
+            0.0
+        },
+        char_accuracy: chars.accuracy().unwrap_or(0.0),
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::recording::{Manifest, Recording, SensorInfo};
+    use rand::Rng;
+
+    /// A toy recording: 6 taxels, one per dot; each cell is 4 frames of
+    /// its dot pattern then 4 flat frames, one frame per 0.5 mm.
+    fn example(text: &str, table: &CodeTable, noise: &mut ChaCha8Rng) -> Example {
+        let cells = table.encode(text).unwrap();
+        let n = cells.len() * 8;
+        let mut frames = Array2::<f32>::zeros((n, 6));
+        for (j, c) in cells.iter().enumerate() {
+            for f in 0..4 {
+                for k in 0..6 {
+                    frames[[j * 8 + f, k]] = if c.has_dot(k as u8 + 1) { 1.0 } else { 0.0 };
+                }
+            }
+        }
+        frames.mapv_inplace(|v| v + noise.gen_range(-0.05..0.05));
+        let recording = Recording {
+            manifest: Manifest {
+                format: "tactread-recording".into(),
+                version: 1,
+                frames: "f.csv".into(),
+                npy_columns: None,
+                sensor: SensorInfo {
+                    name: Some("toy6".into()),
+                    taxels: 6,
+                    positions_mm: None,
+                    sample_rate_hz: 40.0,
+                    units: "adc".into(),
+                },
+                text: Some(text.into()),
+                lang: Some("en".into()),
+                notes: None,
+                tags: Default::default(),
+            },
+            time_s: (0..n).map(|i| i as f64 / 40.0).collect(),
+            position_mm: Some((0..n).map(|i| i as f64 * 0.5).collect()),
+            frames,
+        };
+        Example {
+            name: format!("{text}.json"),
+            recording,
+            text: text.into(),
+        }
+    }
+
+    fn toy_data() -> (Vec<Example>, Vec<Example>, CodeTable) {
+        let table = CodeTable::builtin("en").unwrap();
+        let mut rng = ChaCha8Rng::seed_from_u64(3);
+        let letters: Vec<char> = "abcdefghij".chars().collect();
+        let mut make = |n: usize| -> Vec<Example> {
+            (0..n)
+                .map(|_| {
+                    let len = rng.gen_range(2..6);
+                    let t: String = (0..len)
+                        .map(|_| letters[rng.gen_range(0..letters.len())])
+                        .collect();
+                    let mut noise = ChaCha8Rng::seed_from_u64(rng.gen());
+                    example(&t, &table, &mut noise)
+                })
+                .collect()
+        };
+        let train = make(24);
+        let val = make(6);
+        (train, val, table)
+    }
+
+    fn config(epochs: usize) -> TrainConfig {
+        TrainConfig {
+            hidden: 12,
+            layers: 1,
+            epochs,
+            batch: 6,
+            lr: 1e-2,
+            patience: 100,
+            ..TrainConfig::default()
+        }
+    }
+
+    #[test]
+    fn trains_saves_and_resumes_exactly() {
+        let (train_set, val, table) = toy_data();
+        let dir = std::env::temp_dir().join(format!("tactread-train-test-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let a = dir.join("a.json");
+        let b = dir.join("b.json");
+        let mut epochs_seen = 0;
+        let count = |e: Event| {
+            if let Event::Epoch { .. } = e {
+                epochs_seen += 1;
+            }
+            ControlFlow::Continue(())
+        };
+        let full = train(
+            &config(4),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &a,
+            false,
+            count,
+        )
+        .unwrap();
+        assert_eq!(epochs_seen, 4);
+        assert_eq!(full.history.len(), 4);
+        assert!(
+            full.history[3].loss < full.history[0].loss,
+            "{:?}",
+            full.history
+        );
+        assert!(checkpoint_path(&a).exists());
+        let loaded = Model::load(&a).unwrap();
+        assert_eq!(loaded.training.epochs, 4);
+        assert_eq!(loaded.lang, "en");
+
+        // Stopped after two epochs, then resumed: the same final checkpoint.
+        let stop2 = |e: Event| match e {
+            Event::Epoch { epoch: 2, .. } => ControlFlow::Break(()),
+            _ => ControlFlow::Continue(()),
+        };
+        train(
+            &config(4),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &b,
+            false,
+            stop2,
+        )
+        .unwrap();
+        let go = |_: Event| ControlFlow::Continue(());
+        train(&config(4), &train_set, &val, &table, "toy", &b, true, go).unwrap();
+        let ck = |p: &Path| -> serde_json::Value {
+            let v: serde_json::Value =
+                serde_json::from_str(&std::fs::read_to_string(checkpoint_path(p)).unwrap())
+                    .unwrap();
+            v["network"].clone()
+        };
+        assert!(
+            ck(&a) == ck(&b),
+            "resumed run differs from the uninterrupted one"
+        );
+
+        // Resuming with other options is a clear error.
+        let mut other = config(4);
+        other.hidden = 10;
+        let err = train(&other, &train_set, &val, &table, "toy", &b, true, go).unwrap_err();
+        assert!(matches!(err, Error::Mismatch { .. }), "{err}");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
+    fn bad_options_are_config_errors() {
+        let c = TrainConfig {
+            batch: 0,
+            ..TrainConfig::default()
+        };
+        assert!(matches!(c.check(), Err(Error::Config { .. })));
+        let c = TrainConfig {
+            lr: -1.0,
+            ..TrainConfig::default()
+        };
+        assert!(matches!(c.check(), Err(Error::Config { .. })));
+    }
+}

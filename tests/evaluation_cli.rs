@@ -1,0 +1,168 @@
+//! CLI tests of the evaluation commands through the built binary:
+//! `tactread compare` (table, `--json`, refusals) and `tactread show`
+//! (the recording view as an SVG file).
+
+mod common;
+
+use common::{synthetic_set, toy_recording};
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+use tactread::metrics::{evaluate, EvalSettings};
+use tactread::recording::FramesKind;
+
+fn tactread(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_tactread"))
+        .args(args)
+        .output()
+        .expect("the binary runs")
+}
+
+fn temp_dir(name: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("tactread-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+fn s(p: &Path) -> &str {
+    p.to_str().unwrap()
+}
+
+fn write_metrics(dir: &Path) -> (PathBuf, PathBuf, PathBuf) {
+    let settings = EvalSettings {
+        resamples: 200,
+        ..EvalSettings::default()
+    };
+    let a = evaluate("baseline", &synthetic_set(40, 7, 1.0), &settings).unwrap();
+    // The same labels (same seed), read by a reader with half the error rate.
+    let better = synthetic_set(40, 7, 2.0);
+    for (b, r) in better.iter().zip(&synthetic_set(40, 7, 1.0)) {
+        assert_eq!(b.reference, r.reference);
+    }
+    let b = evaluate("careful", &better, &settings).unwrap();
+    let other = evaluate("other shelf", &synthetic_set(40, 8, 1.0), &settings).unwrap();
+    let (pa, pb, po) = (
+        dir.join("a.json"),
+        dir.join("b.json"),
+        dir.join("other.json"),
+    );
+    a.save(&pa).unwrap();
+    b.save(&pb).unwrap();
+    other.save(&po).unwrap();
+    (pa, pb, po)
+}
+
+#[test]
+fn compare_prints_paired_differences_and_refuses_other_sets() {
+    let dir = temp_dir("compare");
+    let (a, b, other) = write_metrics(&dir);
+
+    let out = tactread(&["compare", s(&a), s(&b), "--resamples", "300"]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(stdout.contains("40 recordings matched by id"), "{stdout}");
+    assert!(
+        stdout.contains("without lexicon") && stdout.contains("with lexicon"),
+        "{stdout}"
+    );
+    assert!(
+        stdout.contains("character accuracy") && stdout.contains("B - A"),
+        "{stdout}"
+    );
+
+    let out = tactread(&["compare", s(&a), s(&b), "--json", "--resamples", "300"]);
+    assert!(out.status.success());
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(doc["format"], "tactread-comparison");
+    let diffs = doc["sets"][0]["differences"].as_array().unwrap();
+    let char_acc = diffs
+        .iter()
+        .find(|d| d["metric"] == "char_accuracy")
+        .unwrap();
+    // The careful reader is better, and the interval says so.
+    assert!(char_acc["difference"].as_f64().unwrap() > 0.0, "{char_acc}");
+    assert!(char_acc["low"].as_f64().unwrap() > 0.0, "{char_acc}");
+
+    let out = tactread(&["compare", s(&a), s(&other)]);
+    assert_eq!(out.status.code(), Some(3));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("different test sets"), "{err}");
+
+    std::fs::write(
+        dir.join("bad.json"),
+        "{\"format\": \"tactread-metrics\", \"version\": 1,\n]",
+    )
+    .unwrap();
+    let out = tactread(&["compare", s(&a), s(&dir.join("bad.json"))]);
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("bad.json line 2"), "{err}");
+
+    std::fs::write(
+        dir.join("model.json"),
+        "{\"format\": \"tactread-model\", \"version\": 1}",
+    )
+    .unwrap();
+    let out = tactread(&["compare", s(&dir.join("model.json")), s(&a)]);
+    assert_eq!(out.status.code(), Some(3));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("expected tactread-metrics version 1"));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn show_draws_a_recording_view() {
+    let dir = temp_dir("show");
+    let rec = toy_recording("exit");
+    let manifest = dir.join("door.json");
+    rec.save(&manifest, FramesKind::Csv).unwrap();
+    let svg = dir.join("door.svg");
+
+    let out = tactread(&["show", s(&manifest), "--out", s(&svg)]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&svg).unwrap();
+    assert!(text.starts_with("<svg") && text.trim_end().ends_with("</svg>"));
+    assert!(text.contains("door: \u{201c}exit\u{201d}"));
+    assert!(text.contains("position along the line, mm"));
+    // "exit" in UEB (common practice): e 15, x 1346, i 24, t 2345.
+    for dots in ["15", "1346", "24", "2345"] {
+        // plotters writes a text element's content on its own line.
+        assert!(
+            text.contains(&format!("\n{dots}\n</text>")),
+            "cell {dots} not labelled"
+        );
+    }
+
+    let out = tactread(&["show", s(&manifest), "--out", s(&svg)]);
+    assert_eq!(out.status.code(), Some(4));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--force"));
+    let out = tactread(&[
+        "show",
+        s(&manifest),
+        "--out",
+        s(&svg),
+        "--force",
+        "--pitch-mm",
+        "6.0",
+    ]);
+    assert!(out.status.success());
+
+    let out = tactread(&["show", s(&manifest), "--out", s(&dir.join("v.png"))]);
+    assert_eq!(out.status.code(), Some(2));
+    let out = tactread(&[
+        "show",
+        s(&dir.join("missing.json")),
+        "--out",
+        s(&dir.join("m.svg")),
+    ]);
+    assert_ne!(out.status.code(), Some(0));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("missing.json"));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
