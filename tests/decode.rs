@@ -639,3 +639,101 @@ fn cli_lexicon_build_info_and_errors() {
     assert_eq!(r.status.code(), Some(3));
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+/// A small untrained model for `recording`, saved to `path`: its readings
+/// are noise, but every stage of `tactread decode` runs on real shapes.
+fn untrained_model(recording: &std::path::Path, path: &std::path::Path) {
+    use tactread::net::{GruConfig, Model, Network, SensorSummary, TrainingSummary};
+    use tactread::prep::{Prep, PrepConfig};
+    let rec = tactread::recording::Recording::load(recording).unwrap();
+    let prep = Prep::fit(&PrepConfig::default(), &[&rec]).unwrap();
+    let config = GruConfig {
+        inputs: rec.frames.ncols(),
+        hidden: 8,
+        layers: 1,
+        bidirectional: false,
+    };
+    let net = Network::new(config, 5).unwrap();
+    let sensor = SensorSummary {
+        taxels: rec.frames.ncols(),
+        name: None,
+    };
+    Model::new(net, prep, sensor, "en", TrainingSummary::default())
+        .save(path)
+        .unwrap();
+}
+
+#[test]
+fn cli_decode_text_and_json() {
+    let dir = std::env::temp_dir().join(format!("tactread-cli-decode-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let rec = dir.join("rec.json");
+    let model = dir.join("model.json");
+    let r = tactread(&["simulate", "the cat sat", "--out", rec.to_str().unwrap()]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    untrained_model(&rec, &model);
+    let (m, p) = (model.to_str().unwrap(), rec.to_str().unwrap());
+
+    let r = tactread(&["decode", m, p]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    assert!(String::from_utf8_lossy(&r.stderr).contains("verify"));
+    assert_eq!(String::from_utf8_lossy(&r.stdout).lines().count(), 1);
+
+    for (lang, lexicon) in [
+        ("en", "none"),
+        ("de", "builtin"),
+        ("fr", "builtin"),
+        ("es", "none"),
+    ] {
+        let mut args = vec![
+            "decode", m, p, "--format", "json", "--lang", lang, "--beam", "8",
+        ];
+        if lexicon == "none" {
+            args.extend(["--lexicon", "none"]);
+        }
+        let r = tactread(&args);
+        assert!(
+            r.status.success(),
+            "{lang}: {}",
+            String::from_utf8_lossy(&r.stderr)
+        );
+        let doc: serde_json::Value = serde_json::from_slice(&r.stdout).unwrap();
+        let item = &doc["recordings"][0];
+        assert_eq!(item["lang"], lang);
+        assert_eq!(item["rescored"], lexicon != "none");
+        let n_best = item["n_best"].as_array().unwrap();
+        assert!(!n_best.is_empty() && n_best.len() <= 5);
+        assert_eq!(item["beam_text"], n_best[0]["text"]);
+        let c = item["confidence"].as_f64().unwrap();
+        assert!((0.0..=1.0).contains(&c));
+        for cell in item["cells"].as_array().unwrap() {
+            assert_eq!(cell["dot_probs"].as_array().unwrap().len(), 6);
+        }
+    }
+
+    // A lexicon of another language is refused (exit code 3).
+    let words = dir.join("w.txt");
+    let lex = dir.join("de.lex");
+    std::fs::write(&words, "haus\t3\n").unwrap();
+    let r = tactread(&[
+        "lexicon",
+        "build",
+        words.to_str().unwrap(),
+        "--out",
+        lex.to_str().unwrap(),
+        "--lang",
+        "de",
+    ]);
+    assert!(r.status.success());
+    let r = tactread(&["decode", m, p, "--lexicon", lex.to_str().unwrap()]);
+    assert_eq!(
+        r.status.code(),
+        Some(3),
+        "{}",
+        String::from_utf8_lossy(&r.stderr)
+    );
+    // A bad beam width is a usage error (exit code 2).
+    let r = tactread(&["decode", m, p, "--beam", "0"]);
+    assert_eq!(r.status.code(), Some(2));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
