@@ -7,6 +7,7 @@ use tactread::Result;
 
 mod cells;
 mod compare;
+mod decode;
 mod demo;
 mod inspect;
 mod lexicon;
@@ -26,6 +27,8 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Read recordings with a trained model: ranked text with alternatives.
+    Decode(decode::Args),
     /// Build lexicon files from word lists and look into them.
     Lexicon(lexicon::Args),
     /// Write text as braille cells, or read braille cells back as text.
@@ -46,6 +49,7 @@ enum Command {
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Decode(args) => decode::run(args),
         Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
         Command::Inspect(args) => inspect::run(args),

@@ -45,8 +45,10 @@ pub struct RescoreWeights {
     /// Lexicon log-probability given to a raw reading the lexicon does not
     /// hold. Default -16.0 (about ln 1e-7).
     pub oov_log_prob: f64,
-    /// Largest edit distance searched, for words of 5 letters or more
-    /// (words of 2-4 letters search 1 edit). Default 2.
+    /// Largest edit distance searched, for words of 5 letters or more that
+    /// the lexicon does not hold (listed words and words of 2-4 letters
+    /// search 1 edit: a listed reading is probably right, and the automaton
+    /// for 2 edits costs milliseconds to build). Default 2.
     pub max_edits: u32,
     /// Words with fewer letters than this are left as read. Default 2.
     pub min_letters: usize,
@@ -89,10 +91,10 @@ impl RescoreWeights {
         Ok(())
     }
 
-    fn edits_for(&self, letters: usize) -> u32 {
+    fn edits_for(&self, letters: usize, listed: bool) -> u32 {
         if letters < self.min_letters.max(1) {
             0
-        } else if letters <= 4 {
+        } else if letters <= 4 || listed {
             self.max_edits.min(1)
         } else {
             self.max_edits
@@ -289,7 +291,8 @@ fn slots<C: BrailleCode>(
         let (from, to) = (from.min(n_t), to.min(n_t).max(from.min(n_t)));
         let raw_evidence = span_log_likelihood(frames, from, to, &raw_cells);
         let letters = core.chars().count();
-        let max_edits = weights.edits_for(letters);
+        let raw_log_prob = lexicon.log_prob(core);
+        let max_edits = weights.edits_for(letters, raw_log_prob.is_some());
         let mut cands = Vec::new();
         if max_edits > 0 {
             let core_lower = core.to_lowercase();
@@ -319,7 +322,7 @@ fn slots<C: BrailleCode>(
         out.push(Slot {
             cells: (start, end),
             frames: (from, to),
-            raw_log_prob: lexicon.log_prob(core),
+            raw_log_prob,
             raw,
             raw_cells,
             raw_evidence,
