@@ -418,17 +418,22 @@ impl Lexicon {
 /// A Levenshtein automaton over UTF-8 bytes that computes the edit-distance
 /// row of each character as the fst search reaches it (the classic
 /// dynamic-programming walk of a trie; Levenshtein 1966 distance, Wagner and
-/// Fischer 1974 recurrence), for use with [`fst::Map::search`].
+/// Fischer 1974 recurrence), for use with [`fst::Map::search`]. Queries of
+/// more than [`MAX_QUERY`] characters match nothing.
 pub(crate) struct LazyLevenshtein {
     query: Vec<char>,
-    dist: u32,
+    dist: u8,
 }
 
-/// A row of distances from the query's prefixes, plus the bytes of a
-/// character not yet complete.
-#[derive(Clone, Debug)]
+/// Longest query [`LazyLevenshtein`] searches for.
+pub(crate) const MAX_QUERY: usize = 31;
+
+/// A row of distances from the query's prefixes (capped at `dist + 1`),
+/// plus the bytes of a character not yet complete. Fixed-size, so states
+/// are copied, never allocated.
+#[derive(Clone, Copy, Debug)]
 pub(crate) struct LevState {
-    row: Vec<u32>,
+    row: [u8; MAX_QUERY + 1],
     pending: [u8; 4],
     len: u8,
 }
@@ -437,7 +442,7 @@ impl LazyLevenshtein {
     pub(crate) fn new(query: &str, dist: u32) -> Self {
         LazyLevenshtein {
             query: query.chars().collect(),
-            dist,
+            dist: dist.min(254) as u8,
         }
     }
 }
@@ -455,8 +460,16 @@ impl fst::Automaton for LazyLevenshtein {
     type State = Option<LevState>;
 
     fn start(&self) -> Option<LevState> {
+        let n = self.query.len();
+        if n > MAX_QUERY {
+            return None;
+        }
+        let mut row = [0u8; MAX_QUERY + 1];
+        for (i, r) in row.iter_mut().enumerate().take(n + 1) {
+            *r = (i as u8).min(self.dist + 1);
+        }
         Some(LevState {
-            row: (0..=self.query.len() as u32).collect(),
+            row,
             pending: [0; 4],
             len: 0,
         })
@@ -465,7 +478,7 @@ impl fst::Automaton for LazyLevenshtein {
     fn is_match(&self, state: &Option<LevState>) -> bool {
         state
             .as_ref()
-            .is_some_and(|s| s.len == 0 && s.row.last().is_some_and(|&d| d <= self.dist))
+            .is_some_and(|s| s.len == 0 && s.row[self.query.len()] <= self.dist)
     }
 
     fn can_match(&self, state: &Option<LevState>) -> bool {
@@ -474,36 +487,36 @@ impl fst::Automaton for LazyLevenshtein {
 
     fn accept(&self, state: &Option<LevState>, byte: u8) -> Option<LevState> {
         let s = state.as_ref()?;
-        let mut pending = s.pending;
+        let mut next = *s;
         let len = s.len as usize;
         if len >= 4 {
             return None;
         }
-        pending[len] = byte;
+        next.pending[len] = byte;
         let len = len + 1;
-        if len < utf8_width(pending[0]) {
-            return Some(LevState {
-                row: s.row.clone(),
-                pending,
-                len: len as u8,
-            });
+        if len < utf8_width(next.pending[0]) {
+            next.len = len as u8;
+            return Some(next);
         }
-        let ch = std::str::from_utf8(&pending[..len]).ok()?.chars().next()?;
-        let mut row = Vec::with_capacity(s.row.len());
-        row.push(s.row[0] + 1);
+        let ch = std::str::from_utf8(&next.pending[..len])
+            .ok()?
+            .chars()
+            .next()?;
+        let cap = self.dist + 1;
+        next.row[0] = s.row[0].saturating_add(1).min(cap);
+        let mut alive = next.row[0] <= self.dist;
         for (i, &q) in self.query.iter().enumerate() {
-            let sub = s.row[i] + u32::from(q != ch);
-            let v = sub.min(s.row[i + 1] + 1).min(row[i] + 1);
-            row.push(v.min(self.dist + 1));
+            let sub = s.row[i] + u8::from(q != ch);
+            let v = sub.min(s.row[i + 1] + 1).min(next.row[i] + 1).min(cap);
+            next.row[i + 1] = v;
+            alive |= v <= self.dist;
         }
-        if row.iter().all(|&d| d > self.dist) {
+        if !alive {
             return None;
         }
-        Some(LevState {
-            row,
-            pending: [0; 4],
-            len: 0,
-        })
+        next.pending = [0; 4];
+        next.len = 0;
+        Some(next)
     }
 }
 
