@@ -47,10 +47,10 @@ pub use rescore::{
 
 pub(crate) use rescore::rescore_pruned;
 
+use crate::fsutil::write_atomic;
 use crate::{Error, Location, Result};
 use fst::{IntoStreamer, Map, MapBuilder, Streamer};
 use std::collections::{BTreeMap, HashMap};
-use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::Mutex;
 
@@ -518,31 +518,6 @@ impl fst::Automaton for LazyLevenshtein {
         next.len = 0;
         Some(next)
     }
-}
-
-/// Write `bytes` to `path` through a temporary file in the same folder.
-pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "out".into());
-    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    let result = (|| {
-        let mut f = std::fs::File::create(&tmp).map_err(|e| Error::io("cannot create", &tmp, e))?;
-        f.write_all(bytes)
-            .map_err(|e| Error::io("cannot write", &tmp, e))?;
-        f.sync_all()
-            .map_err(|e| Error::io("cannot write", &tmp, e))?;
-        std::fs::rename(&tmp, path).map_err(|e| Error::io("cannot rename into", path, e))
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result
 }
 
 #[cfg(test)]

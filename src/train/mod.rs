@@ -462,7 +462,7 @@ pub fn train(
             seconds: secs,
         };
         let text = serde_json::to_string(&ck).expect("a checkpoint always serialises");
-        crate::net::write_atomic(&ckpt_path, text.as_bytes())?;
+        crate::fsutil::write_atomic(&ckpt_path, text.as_bytes())?;
         let flow = on_event(Event::Epoch {
             epoch,
             train_loss,
