@@ -155,7 +155,7 @@ fn parse_dots(line: &str, source: &str, no: usize) -> Result<Vec<Cell>> {
         let mut dots = Vec::new();
         for c in token.chars() {
             match c.to_digit(10) {
-                Some(d @ 1..=8) if dots.last().map_or(true, |&l| l < d as u8) => dots.push(d as u8),
+                Some(d @ 1..=8) if dots.last().is_none_or(|&l| l < d as u8) => dots.push(d as u8),
                 Some(1..=8) => return Err(bad("repeats a dot or is out of order")),
                 _ => return Err(bad("is not a cell of dot numbers")),
             }

@@ -13,7 +13,7 @@ use crate::Cell;
 /// the blank, `Some(mask)` for cell `(s - 1) / 2`.
 #[inline]
 fn label(cells: &[Cell], s: usize) -> Option<u8> {
-    if s % 2 == 0 {
+    if s.is_multiple_of(2) {
         None
     } else {
         Some(cells[s / 2].mask())

@@ -573,7 +573,7 @@ pub fn tune<C: BrailleCode>(
                         edits += b;
                     }
                     let acc = accuracy(words, edits);
-                    if best.as_ref().map_or(true, |(b, _)| acc > *b) {
+                    if best.as_ref().is_none_or(|(b, _)| acc > *b) {
                         best = Some((acc, w));
                     }
                 }

@@ -431,7 +431,7 @@ pub fn train(
         let train_loss = nll / cells.max(1) as f64;
         let v = pool.install(|| validate(&net, &val_p, table))?;
         epoch += 1;
-        let is_best = best.as_ref().map_or(true, |(_, b, _)| v.better_than(b));
+        let is_best = best.as_ref().is_none_or(|(_, b, _)| v.better_than(b));
         let secs = seconds_before + started.elapsed().as_secs_f64();
         if is_best {
             best = Some((epoch, v, train_loss));
