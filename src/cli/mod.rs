@@ -13,6 +13,7 @@ mod inspect;
 mod lexicon;
 mod show;
 mod simulate;
+mod train;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -40,6 +41,8 @@ enum Command {
     Compare(compare::Args),
     /// Draw one recording's taxel signals with its ground-truth cells as an SVG file.
     Show(show::Args),
+    /// Train a reading model on a dataset folder.
+    Train(Box<train::Args>),
 }
 
 /// Run the parsed command line.
@@ -53,5 +56,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Simulate(args) => simulate::run(*args),
         Command::Compare(args) => compare::run(args),
         Command::Show(args) => show::run(args),
+        Command::Train(args) => train::run(*args),
     }
 }

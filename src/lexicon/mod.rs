@@ -22,8 +22,9 @@
 //! 30+n    ...   fst map bytes (word -> count), fst crate 0.4 format
 //! ```
 //!
-//! Loading checks the tag and the version and refuses anything else with
-//! [`Error::Format`].
+//! Loading checks the tag, the version and the fst map's own CRC-32C
+//! checksum (so a damaged file is refused at load instead of failing inside
+//! the fst crate later) and refuses anything else with [`Error::Format`].
 //!
 //! ## Builtin lexicons
 //!
@@ -135,6 +136,9 @@ pub struct Lexicon {
     /// (Zipf), and building a Levenshtein automaton costs far more than a
     /// lookup. Cleared when it reaches `NEAR_CACHE` entries.
     near_cache: Mutex<HashMap<(String, u32), Vec<NearWord>>>,
+    /// Length in bytes of the longest word (0 when empty): no query with
+    /// more characters than this plus the edit budget can be near a word.
+    max_word_bytes: usize,
 }
 
 /// Most entries kept in a lexicon's near-word cache.
@@ -172,6 +176,7 @@ impl Lexicon {
         }
         let mut builder = MapBuilder::memory();
         let mut total = 0u64;
+        let max_word_bytes = words.keys().map(|w| w.len()).max().unwrap_or(0);
         for (w, &c) in &words {
             builder.insert(w, c).map_err(|e| {
                 Error::config("word list", format!("cannot build the lexicon: {e}"))
@@ -188,6 +193,7 @@ impl Lexicon {
             total,
             lang: lang.to_string(),
             near_cache: Mutex::default(),
+            max_word_bytes,
         })
     }
 
@@ -261,6 +267,12 @@ impl Lexicon {
     /// the source for why not fst's); nearest first, then most frequent.
     pub fn near(&self, query: &str, max_edits: u32) -> Vec<NearWord> {
         let q = query.to_lowercase();
+        // A query longer than the longest listed word by more than
+        // `max_edits` characters can be near no word.
+        let reach = self.max_word_bytes.saturating_add(max_edits as usize);
+        if q.chars().count() > reach {
+            return Vec::new();
+        }
         let key = (q, max_edits);
         if let Ok(cache) = self.near_cache.lock() {
             if let Some(hit) = cache.get(&key) {
@@ -369,11 +381,23 @@ impl Lexicon {
             .to_string();
         let map = Map::new(bytes[30 + n..].to_vec())
             .map_err(|e| fail(format!("a damaged word map ({e})")))?;
+        // The fst crate reads its nodes without bounds checks of its own
+        // beyond Rust's, so a damaged map panics on first use: check its
+        // CRC-32C over every byte before handing it out.
+        map.as_fst()
+            .verify()
+            .map_err(|e| fail(format!("a damaged word map ({e})")))?;
+        let mut max_word_bytes = 0;
+        let mut keys = map.keys();
+        while let Some(k) = keys.next() {
+            max_word_bytes = max_word_bytes.max(k.len());
+        }
         Ok(Lexicon {
             map,
             total,
             lang,
             near_cache: Mutex::default(),
+            max_word_bytes,
         })
     }
 
@@ -618,6 +642,61 @@ mod tests {
         }
         assert!(!fst_found);
         assert!(l.near("grösse", 1).iter().any(|n| n.word == "grüsse"));
+    }
+
+    #[test]
+    fn near_bounds_queries_by_the_longest_word() {
+        // Regression (found by fuzz/fuzz_targets/word_list.rs, which ran out
+        // of memory): the Levenshtein automaton grows with the query, so a
+        // long run of cells without a space made `near` slow and huge. A
+        // query more than `max_edits` characters longer than every listed
+        // word cannot be near any of them and is answered at once.
+        let l = lex("tea\t10\nteapot\t2\n");
+        // "teapotxx" is 2 insertions from "teapot": 8 chars = 6 + 2, in reach.
+        let got: Vec<_> = l.near("teapotxx", 2).into_iter().map(|n| n.word).collect();
+        assert_eq!(got, vec!["teapot".to_string()]);
+        assert!(l.near("teapotxxx", 2).is_empty());
+        let long: String = "tea".repeat(5000);
+        assert!(l.near(&long, 2).is_empty());
+        // The bound survives the file format.
+        let back = Lexicon::from_bytes(l.to_bytes(), Path::new("x.lex")).unwrap();
+        assert_eq!(back.near("teapotxx", 2).len(), 1);
+        assert!(back.near("teapotxxx", 2).is_empty());
+        // Multi-byte letters: the bound counts bytes of the word (an upper
+        // bound on its characters), so nothing reachable is cut off.
+        let de = lex("straße\t3\n");
+        assert_eq!(de.near("strasse", 2).len(), 1); // ß -> s, insert s
+        assert_eq!(de.near("straßexy", 2).len(), 1);
+    }
+
+    #[test]
+    fn damaged_word_map_is_refused_at_load() {
+        // Regression (found by fuzz/fuzz_targets/lexicon_file.rs): a lexicon
+        // file whose fst bytes were damaged loaded fine and then panicked
+        // inside the fst crate (index out of bounds) when its words were
+        // listed. CRC-32C detects every error burst of up to 32 bits, so
+        // every single-byte change and every cut must be refused at load.
+        let b = lex("tea\t12\njar\t5\nroom\t3\nshelf\nlabel\t40\n").to_bytes();
+        let map_start = 30 + 2; // header + "en"
+        for i in map_start..b.len() {
+            for flip in [0x01u8, 0x80, 0xff] {
+                let mut d = b.clone();
+                d[i] ^= flip;
+                let e = Lexicon::from_bytes(d, Path::new("x.lex"));
+                assert!(
+                    matches!(e, Err(Error::Format { .. })),
+                    "byte {i} ^ {flip:#x} was not refused"
+                );
+            }
+        }
+        for len in map_start..b.len() {
+            let e = Lexicon::from_bytes(b[..len].to_vec(), Path::new("x.lex"));
+            assert!(matches!(e, Err(Error::Format { .. })), "cut at {len}");
+        }
+        let mut d = b.clone();
+        d[map_start + 5] ^= 0xff;
+        let e = Lexicon::from_bytes(d, Path::new("x.lex")).unwrap_err();
+        assert!(e.to_string().contains("damaged word map"), "{e}");
     }
 
     #[test]

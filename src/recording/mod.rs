@@ -30,6 +30,8 @@
 
 mod csv_frames;
 mod dataset;
+#[doc(hidden)]
+pub mod fuzzing;
 mod manifest;
 #[cfg(test)]
 mod no_panic_tests;

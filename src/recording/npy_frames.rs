@@ -326,10 +326,11 @@ impl Parser<'_> {
     }
 }
 
-/// Reads an `.npy` frames file chunk by chunk.
+/// Reads an `.npy` frames file chunk by chunk, from a file or (for tests and
+/// the fuzz targets) any seekable reader.
 #[derive(Debug)]
-pub(crate) struct NpyFrameReader {
-    file: File,
+pub(crate) struct NpyFrameReader<R = File> {
+    file: R,
     path: PathBuf,
     header: NpyHeader,
     layout: NpyColumns,
@@ -347,12 +348,28 @@ impl NpyFrameReader {
         n_taxels: usize,
         sample_rate_hz: f64,
     ) -> Result<Self> {
-        let at = || Location::file(path);
-        let mut file = File::open(path).map_err(|e| Error::io("cannot open", path, e))?;
+        let file = File::open(path).map_err(|e| Error::io("cannot open", path, e))?;
         let file_len = file
             .metadata()
             .map_err(|e| Error::io("cannot read", path, e))?
             .len();
+        NpyFrameReader::from_reader(file, file_len, path, layout, n_taxels, sample_rate_hz)
+    }
+}
+
+impl<R: Read + Seek> NpyFrameReader<R> {
+    /// Check the header of the `.npy` data in `file` (positioned at its
+    /// start, `file_len` bytes long) against the manifest's layout; `path`
+    /// names it in errors.
+    pub(crate) fn from_reader(
+        mut file: R,
+        file_len: u64,
+        path: &Path,
+        layout: NpyColumns,
+        n_taxels: usize,
+        sample_rate_hz: f64,
+    ) -> Result<Self> {
+        let at = || Location::file(path);
         if file_len == 0 {
             return Err(Error::input(
                 at(),

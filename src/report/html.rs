@@ -430,8 +430,8 @@ characters are marked and <del>missed</del> ones struck out.</p><div class=\"scr
             let svg = recording_view_svg(v)?;
             let _ = write!(
                 h,
-                "<figure>{svg}<figcaption>Top: pressure summed over taxels. Middle: each taxel's signal, \
-darker is more pressure. Bottom: <span class=\"indigo\">ground-truth cells</span>{} at their places; filled circles \
+                "<figure>{svg}<figcaption>Top: pressure above each taxel's baseline (its 10th percentile), summed over taxels. Middle: each taxel's signal above \
+its baseline, darker is more pressure. Bottom: <span class=\"indigo\">ground-truth cells</span>{} at their places; filled circles \
 are raised dots.</figcaption></figure>",
                 if v.decoded.is_some() {
                     " and <span class=\"sea\">decoded cells</span> (wrong ones in red; missed truth cells underlined in red)"

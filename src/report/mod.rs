@@ -1,5 +1,5 @@
-//! Reports: one self-contained HTML page with SVG plots of an
-//! [`Evaluation`](crate::metrics::Evaluation), and the recording view.
+//! Reports: one self-contained HTML page with SVG plots of an evaluation
+//! ([`crate::metrics::Evaluation`]), and the recording view.
 //!
 //! The page works offline: CSS and SVG are inline, there are no scripts
 //! and no external resources. It holds the headline table and an interval

@@ -108,11 +108,17 @@ pub fn place_evenly(cells: &[Cell], first: f64, pitch: f64) -> Vec<PlacedCell> {
         .collect()
 }
 
-/// Ground-truth cells placed on a recording's axis: from the manifest tags
-/// `first_cell_mm` (centre of the first cell) and `cell_pitch_mm` when
-/// present, else one [`DEFAULT_CELL_PITCH_MM`] apart from half a pitch
-/// after the start of the axis. On a time axis the cells are spread evenly
-/// over the recording.
+/// Ground-truth cells placed on a recording's axis.
+///
+/// * Pitch: the manifest tag `cell_pitch_mm`, else `cell_spacing_mm` (as
+///   tactread's simulator writes it), else [`DEFAULT_CELL_PITCH_MM`].
+/// * Centre of the first cell: the tag `first_cell_mm`; else, for a
+///   recording with positions and a `dot_spacing_mm` tag (the simulator's
+///   page coordinates, where x = 0 is the left dot column of the first
+///   cell), half the dot spacing; else half a pitch after the start of the
+///   axis.
+/// * On a time axis (no positions, no speed) the cells are spread evenly
+///   over the recording.
 pub fn place_truth(recording: &Recording, cells: &[Cell]) -> Vec<PlacedCell> {
     let axis = view_axis(recording);
     let tag = |k: &str| {
@@ -126,9 +132,13 @@ pub fn place_truth(recording: &Recording, cells: &[Cell]) -> Vec<PlacedCell> {
     let (lo, hi) = range(&axis.values);
     if axis.in_mm {
         let pitch = tag("cell_pitch_mm")
+            .or_else(|| tag("cell_spacing_mm"))
             .filter(|p| *p > 0.0)
             .unwrap_or(DEFAULT_CELL_PITCH_MM);
-        let first = tag("first_cell_mm").unwrap_or(lo + pitch / 2.0);
+        let page_origin = recording.position_mm.as_ref().and(tag("dot_spacing_mm"));
+        let first = tag("first_cell_mm")
+            .or_else(|| page_origin.map(|d| d / 2.0))
+            .unwrap_or(lo + pitch / 2.0);
         place_evenly(cells, first, pitch)
     } else {
         let pitch = (hi - lo) / cells.len().max(1) as f64;
@@ -213,7 +223,18 @@ fn draw_view(view: &RecordingView) -> DrawResult<String> {
         let label = ("sans-serif", 15).into_font().color(&INK);
         let desc = ("sans-serif", 15).into_font().color(&MUTED);
 
-        // Panel 1: pressure summed over taxels.
+        // Each taxel's baseline (its 10th percentile over the recording) is
+        // taken off, so that contact shows rather than offsets that differ
+        // from taxel to taxel.
+        let baseline: Vec<f32> = (0..n_taxels)
+            .map(|t| {
+                percentile(
+                    rec.frames.column(t).iter().copied().step_by(3).collect(),
+                    0.1,
+                ) as f32
+            })
+            .collect();
+        // Panel 1: pressure above baseline, summed over taxels.
         let sums: Vec<(f64, f64)> = (0..n_frames)
             .map(|i| {
                 (
@@ -222,7 +243,8 @@ fn draw_view(view: &RecordingView) -> DrawResult<String> {
                         rec.frames
                             .row(i)
                             .iter()
-                            .copied()
+                            .zip(&baseline)
+                            .map(|(v, b)| v - b)
                             .filter(|v| v.is_finite())
                             .sum::<f32>(),
                     ),
@@ -241,7 +263,7 @@ fn draw_view(view: &RecordingView) -> DrawResult<String> {
             .build_cartesian_2d(x0..x1, s0..s1 + (s1 - s0) * 0.05)?;
         chart
             .configure_mesh()
-            .y_desc(format!("summed, {}", rec.manifest.sensor.units))
+            .y_desc(format!("sum, {}", rec.manifest.sensor.units))
             .axis_desc_style(desc.clone())
             .label_style(label.clone())
             .bold_line_style(GRID)
@@ -278,14 +300,14 @@ fn draw_view(view: &RecordingView) -> DrawResult<String> {
             }
             let c = (((x - x0) / col_w).floor().max(0.0) as usize).min(cols - 1);
             for (t, row) in pooled.iter_mut().enumerate() {
-                let v = rec.frames[[i, t]];
+                let v = rec.frames[[i, t]] - baseline[t];
                 if v.is_finite() && (row[c].is_nan() || v > row[c]) {
                     row[c] = v;
                 }
             }
         }
         let sample: Vec<f32> = pooled.iter().flatten().copied().step_by(7).collect();
-        let lo = percentile(sample.clone(), 0.01);
+        let lo = percentile(sample.clone(), 0.01).max(0.0);
         let hi = percentile(sample, 0.995).max(lo + 1e-9);
         let mut chart = ChartBuilder::on(&heat_area)
             .margin_left(10)
@@ -494,6 +516,15 @@ mod tests {
         let cells = [Cell::from_mask(1), Cell::from_mask(3)];
         let p = place_truth(&r, &cells);
         assert!((p[0].at - 3.1).abs() < 1e-9 && (p[1].at - 9.3).abs() < 1e-9);
+        let mut sim = toy_recording(true);
+        sim.manifest
+            .tags
+            .insert("cell_spacing_mm".into(), serde_json::json!(6.0));
+        sim.manifest
+            .tags
+            .insert("dot_spacing_mm".into(), serde_json::json!(2.5));
+        let p = place_truth(&sim, &cells);
+        assert!((p[0].at - 1.25).abs() < 1e-9 && (p[1].at - 7.25).abs() < 1e-9);
         let mut r = toy_recording(false);
         assert!(!view_axis(&r).in_mm);
         r.manifest
