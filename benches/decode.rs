@@ -96,23 +96,51 @@ fn median(mut v: Vec<Duration>) -> Duration {
     v[v.len() / 2]
 }
 
-/// Time every method `reps` times, round robin (so a busy machine slows
-/// them alike); medians. Each method returns a count that must be non-zero
-/// (the result is checked inside the timed part).
+/// CPU time of the calling thread: unlike wall time it does not count time
+/// the thread waits for a core, so it holds on a busy shared machine.
+#[cfg(unix)]
+fn thread_cpu() -> Duration {
+    let mut ts = libc::timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
+    // SAFETY: clock_gettime only writes the timespec we pass.
+    let rc = unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut ts) };
+    if rc != 0 {
+        return Duration::ZERO;
+    }
+    Duration::new(ts.tv_sec as u64, ts.tv_nsec as u32)
+}
+
+#[cfg(not(unix))]
+fn thread_cpu() -> Duration {
+    Duration::ZERO
+}
+
 /// A named method under test.
 type Method<'a> = (&'a str, Box<dyn FnMut() -> usize + 'a>);
 
-fn time_all(reps: usize, methods: &mut [Method<'_>]) -> Vec<Duration> {
-    let mut times = vec![Vec::with_capacity(reps); methods.len()];
+/// Time every method `reps` times, round robin (so a busy machine slows
+/// them alike): median wall time and median thread CPU time of each. Each
+/// method returns a count that must be non-zero (the result is checked
+/// inside the timed part). Everything runs on this thread (the network's
+/// batch-1 forward pass included), so CPU time is the method's own cost.
+fn time_all(reps: usize, methods: &mut [Method<'_>]) -> Vec<(Duration, Duration)> {
+    let mut wall = vec![Vec::with_capacity(reps); methods.len()];
+    let mut cpu = vec![Vec::with_capacity(reps); methods.len()];
     for _ in 0..reps {
         for (i, (name, f)) in methods.iter_mut().enumerate() {
-            let t0 = Instant::now();
+            let (t0, c0) = (Instant::now(), thread_cpu());
             let n = f();
-            times[i].push(t0.elapsed());
+            cpu[i].push(thread_cpu().saturating_sub(c0));
+            wall[i].push(t0.elapsed());
             assert!(n > 0, "{name} produced nothing");
         }
     }
-    times.into_iter().map(median).collect()
+    wall.into_iter()
+        .zip(cpu)
+        .map(|(w, c)| (median(w), median(c)))
+        .collect()
 }
 
 fn word_errors(hyp: &str, truth: &str) -> (usize, usize) {
@@ -202,10 +230,14 @@ fn main() {
     let fwd = time_all(reps.min(5), &mut fwd_methods);
     let fwd_us: Vec<f64> = fwd
         .iter()
-        .map(|d| d.as_secs_f64() * 1e6 / n_frames as f64)
+        .map(|d| d.1.as_secs_f64() * 1e6 / n_frames as f64)
         .collect();
-    for ((hidden, _), us) in nets.iter().zip(&fwd_us) {
-        println!("network forward, GRU 2 x {hidden}, 24 inputs, batch 1: {us:.2} us/frame");
+    for ((hidden, _), (w, c)) in nets.iter().zip(&fwd) {
+        println!(
+            "network forward, GRU 2 x {hidden}, 24 inputs, batch 1: {:.2} us/frame CPU ({:.2} wall)",
+            c.as_secs_f64() * 1e6 / n_frames as f64,
+            w.as_secs_f64() * 1e6 / n_frames as f64
+        );
     }
 
     for regime in &REGIMES {
@@ -274,18 +306,22 @@ fn main() {
         let us = |d: Duration| d.as_secs_f64() * 1e6 / frames as f64;
         println!();
         println!("regime: {}", regime.name);
-        println!("{:<40} {:>10} {:>9}", "method", "us/frame", "x greedy");
-        for ((name, _), d) in methods.iter().zip(&t) {
+        println!(
+            "{:<40} {:>13} {:>14} {:>9}",
+            "method", "us/frame CPU", "us/frame wall", "x greedy"
+        );
+        for ((name, _), (w, c)) in methods.iter().zip(&t) {
             println!(
-                "{name:<40} {:>10.3} {:>9.1}",
-                us(*d),
-                d.as_secs_f64() / t[0].as_secs_f64()
+                "{name:<40} {:>13.3} {:>14.3} {:>9.1}",
+                us(*c),
+                us(*w),
+                c.as_secs_f64() / t[0].1.as_secs_f64()
             );
         }
-        let (g, r, f) = (us(t[0]), us(t[2]), us(t[3]));
+        let (g, r, f) = (us(t[0].1), us(t[2].1), us(t[3].1));
         for ((hidden, _), fw) in nets.iter().zip(&fwd_us) {
             println!(
-                "with GRU 2 x {hidden}: beam 16 + reader + lexicon adds {:.0}% to network + greedy \
+                "with GRU 2 x {hidden} (CPU): beam 16 + reader + lexicon adds {:.0}% to network + greedy \
                  (beam 16 + reader alone {:.0}%)",
                 100.0 * (f - g) / (fw + g),
                 100.0 * (r - g) / (fw + g)

@@ -735,5 +735,29 @@ fn cli_decode_text_and_json() {
     // A bad beam width is a usage error (exit code 2).
     let r = tactread(&["decode", m, p, "--beam", "0"]);
     assert_eq!(r.status.code(), Some(2));
+
+    // Tuning writes weights that decode reads back. (An untrained model
+    // reads nothing right, so only the mechanics are checked here.)
+    let weights = dir.join("weights.json");
+    let w = weights.to_str().unwrap();
+    let r = tactread(&["lexicon", "tune", m, p, "--out", w, "--beam", "4"]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    assert!(String::from_utf8_lossy(&r.stdout).contains("word accuracy"));
+    let back: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&weights).unwrap()).unwrap();
+    assert!(back["lm_weight"].is_number());
+    let r = tactread(&["decode", m, p, "--weights", w]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    // No overwrite without --force; a damaged weights file names itself.
+    assert_eq!(
+        tactread(&["lexicon", "tune", m, p, "--out", w])
+            .status
+            .code(),
+        Some(4)
+    );
+    std::fs::write(&weights, "{\"lm_weight\": \"high\"}").unwrap();
+    let r = tactread(&["decode", m, p, "--weights", w]);
+    assert_eq!(r.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&r.stderr).contains("weights.json"));
     std::fs::remove_dir_all(&dir).unwrap();
 }

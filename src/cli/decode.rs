@@ -2,6 +2,7 @@
 //! beam search with the code table's state, and lexicon rescoring.
 
 use clap::{Args as ClapArgs, ValueEnum};
+use ndarray::Array2;
 use serde_json::{json, Value};
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -34,6 +35,10 @@ pub struct Args {
     /// reading (default: the language's builtin lexicon).
     #[arg(long)]
     lexicon: Option<String>,
+    /// Rescoring weights (JSON from `tactread lexicon tune`; default: the
+    /// built-in defaults).
+    #[arg(long)]
+    weights: Option<PathBuf>,
     /// Output: plain text, or JSON with the N best, per-character
     /// alternatives, per-cell dot probabilities and a confidence.
     #[arg(long, value_enum, default_value_t = Format::Text)]
@@ -78,8 +83,12 @@ pub fn run(args: Args) -> Result<()> {
         ..BeamParams::default()
     };
     let mut decoder = Decoder::new(&table, beam)?;
+    let weights = match &args.weights {
+        Some(p) => load_weights(p)?,
+        None => RescoreWeights::default(),
+    };
     if let Some(lex) = &lexicon {
-        decoder = decoder.with_lexicon(lex, RescoreWeights::default())?;
+        decoder = decoder.with_lexicon(lex, weights)?;
     }
     if args.lang.is_some() && lang != model.lang {
         eprintln!(
@@ -92,14 +101,7 @@ pub fn run(args: Args) -> Result<()> {
     for path in &args.recordings {
         let name = path.display().to_string();
         let rec = Recording::load(path)?;
-        model.check_taxels(rec.frames.ncols(), &name)?;
-        let x = model.prep.apply(&rec, &name)?;
-        let lp = model
-            .network
-            .forward(&[x.view()])?
-            .into_iter()
-            .next()
-            .ok_or_else(|| Error::config("model", "the network returned no output"))?;
+        let lp = network_output(&model, &rec, &name)?;
         results.push((name, decoder.decode(lp.view())?));
     }
 
@@ -136,6 +138,31 @@ pub fn run(args: Args) -> Result<()> {
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
         Err(e) => Err(Error::io("cannot write", "<stdout>", e)),
     }
+}
+
+/// The model's `[n_frames, 65]` log-probabilities for a recording.
+pub(crate) fn network_output(model: &Model, rec: &Recording, name: &str) -> Result<Array2<f32>> {
+    model.check_taxels(rec.frames.ncols(), name)?;
+    let x = model.prep.apply(rec, name)?;
+    model
+        .network
+        .forward(&[x.view()])?
+        .into_iter()
+        .next()
+        .ok_or_else(|| Error::config("model", "the network returned no output"))
+}
+
+/// Rescoring weights from a JSON file written by `tactread lexicon tune`.
+pub(crate) fn load_weights(path: &Path) -> Result<RescoreWeights> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
+    let w: RescoreWeights = serde_json::from_str(&text).map_err(|e| {
+        Error::input(
+            tactread::Location::file(path).line(e.line()),
+            format!("not a rescoring weights file ({e}): write one with `tactread lexicon tune`"),
+        )
+    })?;
+    w.check()?;
+    Ok(w)
 }
 
 fn round(x: f64) -> f64 {

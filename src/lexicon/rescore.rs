@@ -39,7 +39,8 @@ use ndarray::ArrayView2;
 /// Weights of word rescoring. Defaults are the values tuned on the
 /// synthetic validation set of `benches/decode.rs`'s generator; tune them on
 /// your own recordings with [`tune`].
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct RescoreWeights {
     /// Weight of the lexicon log-probability. Default 1.0.
     pub lm_weight: f64,
