@@ -1,7 +1,7 @@
 //! Decoder benchmark: greedy decoding vs beam 16 vs beam 16 + lexicon
 //! rescoring, on synthetic network outputs (`[n_frames, 65]`) made from
 //! English text with a fixed seed, outside the timed part. Prints medians
-//! per recording and per frame, the overhead ratios, and (as a side result)
+//! per frame, the overhead ratios against a GRU forward pass, and (as a side result)
 //! word accuracy with and without the lexicon on these synthetic outputs.
 //!
 //! `cargo bench --bench decode` (full) or `cargo bench --bench decode --
@@ -30,12 +30,14 @@ mod code {
 /// product of six per-dot Bernoulli terms. Dots are confident (0.97/0.03)
 /// except that with probability `p_doubt` a dot of a cell is doubtful
 /// (0.35-0.65, so the reading may flip), and with probability `p_flip` a dot
-/// is read wrongly with confidence 0.75.
+/// is read wrongly with confidence 0.75. Blank frames give the cells a
+/// non-blank mass drawn log-uniformly from `10^log10_mass`.
 fn synth(
     cells: &[Cell],
     per_cell: usize,
     p_doubt: f64,
     p_flip: f64,
+    log10_mass: (f64, f64),
     rng: &mut ChaCha8Rng,
 ) -> Array2<f32> {
     let n = cells.len() * per_cell + 4;
@@ -52,7 +54,8 @@ fn synth(
         a[[t, 64]] = blank.ln() as f32;
     };
     let mut t = 0;
-    let blank_row = |rng: &mut ChaCha8Rng| rng.gen_range(0.97..0.9995);
+    let blank_row =
+        |rng: &mut ChaCha8Rng| 1.0 - 10f64.powf(rng.gen_range(log10_mass.0..log10_mass.1));
     for _ in 0..2 {
         fill(t, blank_row(rng), &[0.5; 6], &mut a);
         t += 1;
@@ -93,16 +96,51 @@ fn median(mut v: Vec<Duration>) -> Duration {
     v[v.len() / 2]
 }
 
-fn time<F: FnMut() -> usize>(reps: usize, mut f: F) -> Duration {
-    let mut out = Vec::with_capacity(reps);
-    let mut check = 0;
-    for _ in 0..reps {
-        let t0 = Instant::now();
-        check += f();
-        out.push(t0.elapsed());
+/// CPU time of the calling thread: unlike wall time it does not count time
+/// the thread waits for a core, so it holds on a busy shared machine.
+#[cfg(unix)]
+fn thread_cpu() -> Duration {
+    let mut ts = libc::timespec {
+        tv_sec: 0,
+        tv_nsec: 0,
+    };
+    // SAFETY: clock_gettime only writes the timespec we pass.
+    let rc = unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut ts) };
+    if rc != 0 {
+        return Duration::ZERO;
     }
-    assert!(check > 0, "decoders produced nothing");
-    median(out)
+    Duration::new(ts.tv_sec as u64, ts.tv_nsec as u32)
+}
+
+#[cfg(not(unix))]
+fn thread_cpu() -> Duration {
+    Duration::ZERO
+}
+
+/// A named method under test.
+type Method<'a> = (&'a str, Box<dyn FnMut() -> usize + 'a>);
+
+/// Time every method `reps` times, round robin (so a busy machine slows
+/// them alike): median wall time and median thread CPU time of each. Each
+/// method returns a count that must be non-zero (the result is checked
+/// inside the timed part). Everything runs on this thread (the network's
+/// batch-1 forward pass included), so CPU time is the method's own cost.
+fn time_all(reps: usize, methods: &mut [Method<'_>]) -> Vec<(Duration, Duration)> {
+    let mut wall = vec![Vec::with_capacity(reps); methods.len()];
+    let mut cpu = vec![Vec::with_capacity(reps); methods.len()];
+    for _ in 0..reps {
+        for (i, (name, f)) in methods.iter_mut().enumerate() {
+            let (t0, c0) = (Instant::now(), thread_cpu());
+            let n = f();
+            cpu[i].push(thread_cpu().saturating_sub(c0));
+            wall[i].push(t0.elapsed());
+            assert!(n > 0, "{name} produced nothing");
+        }
+    }
+    wall.into_iter()
+        .zip(cpu)
+        .map(|(w, c)| (median(w), median(c)))
+        .collect()
 }
 
 fn word_errors(hyp: &str, truth: &str) -> (usize, usize) {
@@ -120,12 +158,29 @@ fn word_errors(hyp: &str, truth: &str) -> (usize, usize) {
     (t.len(), prev[h.len()])
 }
 
+/// One synthetic regime: how blank frames look.
+struct Regime {
+    name: &'static str,
+    /// Range of log10 of the non-blank mass on blank frames.
+    log10_mass: (f64, f64),
+}
+
+const REGIMES: [Regime; 2] = [
+    Regime {
+        name: "peaky (blank frames: non-blank mass 1e-5..1e-2, log-uniform)",
+        log10_mass: (-5.0, -2.0),
+    },
+    Regime {
+        name: "smeared (blank frames: non-blank mass 5e-4..3e-2, log-uniform)",
+        log10_mass: (-3.3, -1.5),
+    },
+];
+
 fn main() {
     let quick = std::env::args().any(|a| a == "--quick");
-    let (n_recordings, reps) = if quick { (3, 3) } else { (20, 15) };
+    let (n_recordings, reps) = if quick { (3, 3) } else { (12, 11) };
     let words_per_recording = 40;
     let per_cell = 20;
-    let mut rng = ChaCha8Rng::seed_from_u64(2024);
 
     let t0 = Instant::now();
     let lexicon = Lexicon::builtin("en").expect("builtin lexicon");
@@ -134,100 +189,162 @@ fn main() {
     let mut vocab = lexicon.words();
     vocab.sort_by_key(|w| std::cmp::Reverse(w.1));
     let vocab: Vec<String> = vocab.into_iter().take(3000).map(|(w, _)| w).collect();
-
-    let mut data = Vec::new();
-    for _ in 0..n_recordings {
-        let mut words: Vec<String> = (0..words_per_recording)
-            .map(|_| vocab.choose(&mut rng).cloned().unwrap_or_default())
-            .collect();
-        // Some numbers, which the lexicon must leave alone.
-        for _ in 0..3 {
-            let i = rng.gen_range(0..words.len());
-            words[i] = rng.gen_range(2..2000).to_string();
-        }
-        let text = words.join(" ");
-        let cells = table.encode(&text).expect("encodable text");
-        let lp = synth(&cells, per_cell, 0.015, 0.003, &mut rng);
-        data.push((text, lp));
-    }
-    let frames: usize = data.iter().map(|(_, a)| a.nrows()).sum();
-    let per_rec = frames as f64 / data.len() as f64;
-
-    let beam = BeamParams::default();
-    let plain = Decoder::new(&table, beam.clone()).expect("decoder");
-    let weights = RescoreWeights::default();
-    let with_lex = Decoder::new(&table, beam.clone())
-        .expect("decoder")
-        .with_lexicon(&lexicon, weights)
-        .expect("decoder");
-
-    let greedy = time(reps, || {
-        data.iter()
-            .map(|(_, a)| greedy_decode(a.view()).unwrap().len())
-            .sum()
-    });
-    let cells16 = time(reps, || {
-        data.iter()
-            .map(|(_, a)| beam_search(a.view(), &beam).unwrap()[0].cells.len())
-            .sum()
-    });
-    let read16 = time(reps, || {
-        data.iter()
-            .map(|(_, a)| plain.decode(a.view()).unwrap().text.len())
-            .sum()
-    });
-    let full = time(reps, || {
-        data.iter()
-            .map(|(_, a)| with_lex.decode(a.view()).unwrap().text.len())
-            .sum()
-    });
-
-    let us_frame = |d: Duration| d.as_secs_f64() * 1e6 / frames as f64;
-    let ms_rec = |d: Duration| d.as_secs_f64() * 1e3 / data.len() as f64;
     println!(
-        "decoder benchmark: {} recordings x {words_per_recording} words, {per_rec:.0} frames each ({per_cell} frames per cell), medians of {reps} runs",
-        data.len()
-    );
-    println!(
-        "{:<44} {:>12} {:>12} {:>8}",
-        "method", "ms/recording", "us/frame", "x greedy"
-    );
-    for (name, d) in [
-        ("greedy (argmax, collapse)", greedy),
-        ("beam 16, cells only", cells16),
-        ("beam 16 + code reader + evidence", read16),
-        ("beam 16 + code reader + evidence + lexicon", full),
-    ] {
-        println!(
-            "{name:<44} {:>12.3} {:>12.3} {:>8.1}",
-            ms_rec(d),
-            us_frame(d),
-            d.as_secs_f64() / greedy.as_secs_f64()
-        );
-    }
-    println!(
-        "rescoring adds {:.1}% to beam 16 + reader; builtin en lexicon compiled in {:.1} ms",
-        100.0 * (full.as_secs_f64() / read16.as_secs_f64() - 1.0),
+        "decoder benchmark: {n_recordings} recordings x {words_per_recording} words of English \
+         (3 of them numbers), {per_cell} frames per cell, medians of {reps} round-robin runs; \
+         builtin en lexicon ({} words) compiled in {:.1} ms",
+        lexicon.len(),
         lexicon_build.as_secs_f64() * 1e3
     );
 
-    // Side result: word accuracy on these synthetic outputs.
-    let (mut words, mut e_greedy, mut e_beam, mut e_lex) = (0, 0, 0, 0);
-    for (text, a) in &data {
-        let g = table.decode(&greedy_decode(a.view()).unwrap()).text;
-        let b = plain.decode(a.view()).unwrap().text;
-        let l = with_lex.decode(a.view()).unwrap().text;
-        let (w, eg) = word_errors(&g, text);
-        words += w;
-        e_greedy += eg;
-        e_beam += word_errors(&b, text).1;
-        e_lex += word_errors(&l, text).1;
+    // The network's forward pass, for the overhead ratio: randomly
+    // initialised GRU stacks (Cho et al. 2014) of two plausible sizes on a
+    // 24-taxel input, batch 1.
+    let mut rng = ChaCha8Rng::seed_from_u64(2024);
+    let n_frames = 5000;
+    let mut x = Array2::<f32>::zeros((n_frames, 24));
+    x.mapv_inplace(|_| rng.gen_range(-1.0..1.0));
+    let nets: Vec<(usize, tactread::net::Network)> = [64usize, 128]
+        .iter()
+        .map(|&hidden| {
+            let config = tactread::net::GruConfig {
+                inputs: 24,
+                hidden,
+                layers: 2,
+                bidirectional: false,
+            };
+            (
+                hidden,
+                tactread::net::Network::new(config, 1).expect("network"),
+            )
+        })
+        .collect();
+    let mut fwd_methods: Vec<Method<'_>> = Vec::new();
+    for (_, net) in &nets {
+        let x = &x;
+        fwd_methods.push((
+            "forward",
+            Box::new(move || net.forward(&[x.view()]).unwrap()[0].nrows()),
+        ));
     }
-    let acc = |e: usize| 100.0 * (words - e.min(words)) as f64 / words as f64;
-    println!(
-        "word accuracy on the synthetic outputs ({words} words): greedy {:.1}%, beam 16 {:.1}%, beam 16 + lexicon {:.1}% (word errors {e_greedy} / {e_beam} / {e_lex})",
-        acc(e_greedy),
-        acc(e_beam),
-        acc(e_lex)
-    );
+    let fwd = time_all(reps.min(5), &mut fwd_methods);
+    let fwd_us: Vec<f64> = fwd
+        .iter()
+        .map(|d| d.1.as_secs_f64() * 1e6 / n_frames as f64)
+        .collect();
+    for ((hidden, _), (w, c)) in nets.iter().zip(&fwd) {
+        println!(
+            "network forward, GRU 2 x {hidden}, 24 inputs, batch 1: {:.2} us/frame CPU ({:.2} wall)",
+            c.as_secs_f64() * 1e6 / n_frames as f64,
+            w.as_secs_f64() * 1e6 / n_frames as f64
+        );
+    }
+
+    for regime in &REGIMES {
+        let mut data = Vec::new();
+        for _ in 0..n_recordings {
+            let mut words: Vec<String> = (0..words_per_recording)
+                .map(|_| vocab.choose(&mut rng).cloned().unwrap_or_default())
+                .collect();
+            for _ in 0..3 {
+                let i = rng.gen_range(0..words.len());
+                words[i] = rng.gen_range(2..2000).to_string();
+            }
+            let text = words.join(" ");
+            let cells = table.encode(&text).expect("encodable text");
+            let lp = synth(&cells, per_cell, 0.015, 0.003, regime.log10_mass, &mut rng);
+            data.push((text, lp));
+        }
+        let frames: usize = data.iter().map(|(_, a)| a.nrows()).sum();
+
+        let beam = BeamParams::default();
+        let plain = Decoder::new(&table, beam.clone()).expect("decoder");
+        let with_lex = Decoder::new(&table, beam.clone())
+            .expect("decoder")
+            .with_lexicon(&lexicon, RescoreWeights::default())
+            .expect("decoder");
+        let data = &data;
+        let (beam, plain, with_lex, lexicon) = (&beam, &plain, &with_lex, &lexicon);
+        let mut methods: Vec<Method<'_>> = vec![
+            (
+                "greedy (argmax, collapse)",
+                Box::new(move || {
+                    data.iter()
+                        .map(|(_, a)| greedy_decode(a.view()).unwrap().len())
+                        .sum()
+                }),
+            ),
+            (
+                "beam 16, cells only",
+                Box::new(move || {
+                    data.iter()
+                        .map(|(_, a)| beam_search(a.view(), beam).unwrap()[0].cells.len())
+                        .sum()
+                }),
+            ),
+            (
+                "beam 16 + code reader + evidence",
+                Box::new(move || {
+                    data.iter()
+                        .map(|(_, a)| plain.decode(a.view()).unwrap().text.len())
+                        .sum()
+                }),
+            ),
+            (
+                "beam 16 + reader + evidence + lexicon",
+                Box::new(move || {
+                    // Cold near-word cache in every run: the recordings
+                    // repeat from run to run, running text would not.
+                    lexicon.clear_cache();
+                    data.iter()
+                        .map(|(_, a)| with_lex.decode(a.view()).unwrap().text.len())
+                        .sum()
+                }),
+            ),
+        ];
+        let t = time_all(reps, &mut methods);
+        let us = |d: Duration| d.as_secs_f64() * 1e6 / frames as f64;
+        println!();
+        println!("regime: {}", regime.name);
+        println!(
+            "{:<40} {:>13} {:>14} {:>9}",
+            "method", "us/frame CPU", "us/frame wall", "x greedy"
+        );
+        for ((name, _), (w, c)) in methods.iter().zip(&t) {
+            println!(
+                "{name:<40} {:>13.3} {:>14.3} {:>9.1}",
+                us(*c),
+                us(*w),
+                c.as_secs_f64() / t[0].1.as_secs_f64()
+            );
+        }
+        let (g, r, f) = (us(t[0].1), us(t[2].1), us(t[3].1));
+        for ((hidden, _), fw) in nets.iter().zip(&fwd_us) {
+            println!(
+                "with GRU 2 x {hidden} (CPU): beam 16 + reader + lexicon adds {:.0}% to network + greedy \
+                 (beam 16 + reader alone {:.0}%)",
+                100.0 * (f - g) / (fw + g),
+                100.0 * (r - g) / (fw + g)
+            );
+        }
+
+        // Side result: word accuracy on these synthetic outputs.
+        let (mut words, mut e_greedy, mut e_beam, mut e_lex) = (0, 0, 0, 0);
+        for (text, a) in data.iter() {
+            let g = table.decode(&greedy_decode(a.view()).unwrap()).text;
+            let (w, eg) = word_errors(&g, text);
+            words += w;
+            e_greedy += eg;
+            e_beam += word_errors(&plain.decode(a.view()).unwrap().text, text).1;
+            e_lex += word_errors(&with_lex.decode(a.view()).unwrap().text, text).1;
+        }
+        let acc = |e: usize| 100.0 * (words - e.min(words)) as f64 / words as f64;
+        println!(
+            "word accuracy ({words} words): greedy {:.1}%, beam 16 {:.1}%, beam 16 + lexicon {:.1}% \
+             (word errors {e_greedy} / {e_beam} / {e_lex})",
+            acc(e_greedy),
+            acc(e_beam),
+            acc(e_lex)
+        );
+    }
 }

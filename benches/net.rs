@@ -160,7 +160,7 @@ fn bench_step(n: usize) {
 fn main() {
     let quick = std::env::var_os("TACTREAD_BENCH_QUICK").is_some();
     let only = std::env::args().skip(1).find(|a| !a.starts_with('-'));
-    let want = |name: &str| only.as_deref().map_or(true, |o| name.contains(o));
+    let want = |name: &str| only.as_deref().is_none_or(|o| name.contains(o));
     let steps = if quick { 1 } else { 8 };
     if want("train") {
         for bi in [false, true] {

@@ -19,10 +19,10 @@
 //! | frames files and manifests | [`recording`] |
 //! | baseline, scale, resampling by position or time | [`prep`] |
 //! | GRU network, output head, CTC loss, Adam | [`net`] |
+//! | batching, training loop, checkpoints | [`train`] |
 //! | beam search, character hypotheses | [`decode`] |
 //! | word lists, fst lexicons, word rescoring | [`lexicon`] |
 //! | simulated recordings from text | [`simulate`] |
-//! | batching, training loop, checkpoints | [`train`] |
 //! | alignment, accuracies, calibration, bootstrap intervals, comparisons | [`metrics`] |
 //! | HTML report and recording view (SVG) | [`report`] |
 //!
@@ -38,6 +38,7 @@
 pub mod braille;
 pub mod decode;
 mod error;
+mod fsutil;
 pub mod lexicon;
 pub mod metrics;
 pub mod net;

@@ -1,8 +1,8 @@
 //! Every row of docs/bad-input.md: one class of bad input, the error it
 //! gets (the message exactly as printed) and the exit code. Through the
 //! built binary where a command reads that kind of file (`tactread
-//! inspect`, `cells`, `lexicon`, `simulate`), else through the library
-//! (model files: no command loads one yet). Each test names its row
+//! inspect`, `cells`, `lexicon`, `simulate`, `decode`), else through the
+//! library (row R38, and the library side of R28). Each test names its row
 //! (`row_r07_...` is row R7); a change to a message changes the table too.
 //!
 //! Commands run in a scratch folder with relative paths, so messages read
@@ -220,19 +220,19 @@ fn row_r07_truncated_model() {
     let d = scratch("r07");
     let text = model_json(3);
     write(&d, "model.json", &text[..text.len() / 2]);
-    let e = Model::load(&d.join("model.json")).unwrap_err();
-    assert!(matches!(e, Error::Format { .. }), "{e:?}");
-    assert_eq!(e.exit_code(), 3);
-    let shown = e.to_string().replace(&*d.to_string_lossy(), "");
+    three_taxel_recording(&d);
+    let (code, stderr) = run(&d, &["decode", "model.json", "scan.json"]);
+    assert_eq!(code, 3, "{stderr}");
     assert!(
-        shown.starts_with(
-            "/model.json: expected tactread-model version 1, found a file that is not a JSON object (EOF while parsing"
+        stderr.starts_with(
+            "error: model.json: expected tactread-model version 1, found a file that is not a \
+             JSON object (EOF while parsing"
         ),
-        "{shown}"
+        "{stderr}"
     );
     assert!(
-        shown.ends_with(": train a model with this build's `tactread train`"),
-        "{shown}"
+        stderr.ends_with(": train a model with this build's `tactread train`\n"),
+        "{stderr}"
     );
 }
 
@@ -355,13 +355,13 @@ fn row_r14_invalid_utf8_in_model() {
     let mut bytes = model_json(3).into_bytes();
     bytes[20] = 0xff;
     write(&d, "model.json", bytes);
-    let e = Model::load(&d.join("model.json")).unwrap_err();
-    assert_eq!(e.exit_code(), 1, "{e:?}");
-    let shown = e.to_string().replace(&*d.to_string_lossy(), "");
-    assert_eq!(
-        shown,
-        "/model.json line 1: invalid UTF-8 at byte 21 of the line: a model file is UTF-8 JSON \
-         written by tactread: copy it again or train the model again"
+    three_taxel_recording(&d);
+    fails(
+        &d,
+        &["decode", "model.json", "scan.json"],
+        1,
+        "error: model.json line 1: invalid UTF-8 at byte 21 of the line: a model file is UTF-8 \
+         JSON written by tactread: copy it again or train the model again",
     );
 }
 
@@ -505,20 +505,19 @@ fn row_r22_huge_parameter_in_model() {
     let mut v: serde_json::Value = serde_json::from_str(&model_json(3)).unwrap();
     v["network"]["head"]["b"]["data"][0] = serde_json::json!(1e39);
     write(&d, "model.json", v.to_string());
-    let e = Model::load(&d.join("model.json")).unwrap_err();
-    assert!(matches!(e, Error::Format { .. }), "{e:?}");
-    assert_eq!(e.exit_code(), 3);
-    let shown = e.to_string().replace(&*d.to_string_lossy(), "");
+    three_taxel_recording(&d);
+    let (code, stderr) = run(&d, &["decode", "model.json", "scan.json"]);
+    assert_eq!(code, 3, "{stderr}");
     assert!(
-        shown.starts_with(
-            "/model.json: expected tactread-model version 1, found a damaged tactread-model file \
-             (number out of range at line 1 column "
+        stderr.starts_with(
+            "error: model.json: expected tactread-model version 1, found a damaged \
+             tactread-model file (number out of range at line 1 column "
         ),
-        "{shown}"
+        "{stderr}"
     );
     assert!(
-        shown.ends_with("): train a model with this build's `tactread train`"),
-        "{shown}"
+        stderr.ends_with("): train a model with this build's `tactread train`\n"),
+        "{stderr}"
     );
 }
 
@@ -608,6 +607,23 @@ fn row_r27_manifest_positions_disagree_with_taxels() {
 
 #[test]
 fn row_r28_model_for_another_taxel_count() {
+    let d = scratch("r28");
+    write(&d, "model.json", model_json(3));
+    csv_manifest(&d, "scan", 4);
+    write(
+        &d,
+        "scan.csv",
+        "time_s,taxel_0,taxel_1,taxel_2,taxel_3\n0.00,1,1,1,1\n0.02,1,1,1,1\n",
+    );
+    fails(
+        &d,
+        &["decode", "model.json", "scan.json"],
+        3,
+        "error: taxel count of scan.json: expected 3 (the model's sensor), got 4: use a model \
+         trained on recordings of this sensor",
+    );
+    // The library says the same, and the network refuses such frames too,
+    // rather than reading past them.
     let model = Model::from_json(&model_json(3), Path::new("model.json")).unwrap();
     let e = model.check_taxels(24, "scan.json").unwrap_err();
     assert!(matches!(e, Error::Mismatch { .. }), "{e:?}");
@@ -916,14 +932,13 @@ fn row_r46_model_of_another_version() {
     let mut v: serde_json::Value = serde_json::from_str(&model_json(3)).unwrap();
     v["version"] = 2.into();
     write(&d, "model.json", v.to_string());
-    let e = Model::load(&d.join("model.json")).unwrap_err();
-    assert!(matches!(e, Error::Format { .. }), "{e:?}");
-    assert_eq!(e.exit_code(), 3);
-    let shown = e.to_string().replace(&*d.to_string_lossy(), "");
-    assert_eq!(
-        shown,
-        "/model.json: expected tactread-model version 1, found tactread-model version 2: train a \
-         model with this build's `tactread train`"
+    three_taxel_recording(&d);
+    fails(
+        &d,
+        &["decode", "model.json", "scan.json"],
+        3,
+        "error: model.json: expected tactread-model version 1, found tactread-model version 2: \
+         train a model with this build's `tactread train`",
     );
 }
 
@@ -992,6 +1007,16 @@ fn row_r49_sensor_file_with_overlapping_taxels() {
 }
 
 // ---- Helpers for model and sensor files --------------------------------
+
+/// A valid two-frame recording `scan.json` of 3 taxels, for the model rows.
+fn three_taxel_recording(dir: &Path) {
+    csv_manifest(dir, "scan", 3);
+    write(
+        dir,
+        "scan.csv",
+        "time_s,taxel_0,taxel_1,taxel_2\n0.00,1,1,1\n0.02,1,1,1\n",
+    );
+}
 
 /// A small model file's JSON: a one-layer GRU of 4 units over `taxels`
 /// taxels (seeded, untrained).

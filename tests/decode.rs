@@ -291,141 +291,15 @@ fn bad_inputs_are_errors() {
 }
 
 // ---------------------------------------------------------------------------
-// Word rescoring with a small stand-in code (used until the language packs'
-// code tables are on main; the pack tests below use the real ones).
+// Word rescoring and the language packs, with the builtin code tables.
 
-use tactread::decode::{BrailleCode, Decoder};
+use tactread::braille::CodeTable;
+use tactread::decode::Decoder;
 use tactread::lexicon::{parse_word_list, Lexicon, RescoreWeights};
-use tactread::{Error, Result};
+use tactread::Error;
 
-/// Letters a-z as in Unified English Braille grade 1 (ICEB, "The Rules of
-/// Unified English Braille", 2nd ed. 2013, section 3; dot patterns from
-/// memory, matching shared/domain.md's description: a-j top two rows, k-t
-/// add dot 3, u v x y z add dots 3 6 to a-e, w = 2456).
-const UEB_LETTERS: [&[u8]; 26] = [
-    &[1],
-    &[1, 2],
-    &[1, 4],
-    &[1, 4, 5],
-    &[1, 5],
-    &[1, 2, 4],
-    &[1, 2, 4, 5],
-    &[1, 2, 5],
-    &[2, 4],
-    &[2, 4, 5],
-    &[1, 3],
-    &[1, 2, 3],
-    &[1, 3, 4],
-    &[1, 3, 4, 5],
-    &[1, 3, 5],
-    &[1, 2, 3, 4],
-    &[1, 2, 3, 4, 5],
-    &[1, 2, 3, 5],
-    &[2, 3, 4],
-    &[2, 3, 4, 5],
-    &[1, 3, 6],
-    &[1, 2, 3, 6],
-    &[2, 4, 5, 6],
-    &[1, 3, 4, 6],
-    &[1, 3, 4, 5, 6],
-    &[1, 3, 5, 6],
-];
-const CAPITAL: u8 = 0b10_0000; // dots 6
-const NUMERIC: u8 = 0b11_1100; // dots 3456
-
-fn letter_mask(ch: char) -> Option<u8> {
-    let i = (ch as u32).checked_sub('a' as u32)? as usize;
-    UEB_LETTERS
-        .get(i)
-        .map(|d| Cell::from_dots(d).unwrap().mask())
-}
-
-struct StandIn;
-
-#[derive(Clone, Copy, Default)]
-struct StandInReader {
-    capital: bool,
-    numeric: bool,
-}
-
-impl CodeReader for StandInReader {
-    type State = (bool, bool);
-    fn push(&mut self, cell: Cell) -> String {
-        let m = cell.mask();
-        if m == 0 {
-            self.numeric = false;
-            self.capital = false;
-            return " ".into();
-        }
-        if m == CAPITAL {
-            self.capital = true;
-            return String::new();
-        }
-        if m == NUMERIC {
-            self.numeric = true;
-            return String::new();
-        }
-        let letter = (0..26u8).find(|&i| letter_mask((b'a' + i) as char) == Some(m));
-        let out = match letter {
-            Some(i) if self.numeric && i < 10 => ((b'0' + (i + 1) % 10) as char).to_string(),
-            Some(i) => {
-                self.numeric = false;
-                let c = (b'a' + i) as char;
-                if self.capital {
-                    c.to_ascii_uppercase().to_string()
-                } else {
-                    c.to_string()
-                }
-            }
-            None => cell.to_char().to_string(),
-        };
-        self.capital = false;
-        out
-    }
-    fn state(&self) -> (bool, bool) {
-        (self.capital, self.numeric)
-    }
-    fn finish(self) -> String {
-        String::new()
-    }
-}
-
-impl BrailleCode for StandIn {
-    type Reader<'a> = StandInReader;
-    fn reader(&self) -> StandInReader {
-        StandInReader::default()
-    }
-    fn encode(&self, text: &str) -> Result<Vec<Cell>> {
-        let mut out = Vec::new();
-        let mut numeric = false;
-        for (i, ch) in text.chars().enumerate() {
-            if ch == ' ' {
-                out.push(Cell::EMPTY);
-                numeric = false;
-            } else if let Some(d) = ch.to_digit(10) {
-                if !numeric {
-                    out.push(Cell::from_mask(NUMERIC));
-                    numeric = true;
-                }
-                let letter = (b'a' + ((d + 9) % 10) as u8) as char;
-                out.push(Cell::from_mask(letter_mask(letter).unwrap()));
-            } else if let Some(m) = letter_mask(ch.to_ascii_lowercase()) {
-                if ch.is_ascii_uppercase() {
-                    out.push(Cell::from_mask(CAPITAL));
-                }
-                out.push(Cell::from_mask(m));
-            } else {
-                return Err(Error::Unencodable {
-                    ch,
-                    code: ch as u32,
-                    position: i + 1,
-                    lang: "stand-in".into(),
-                    hint: "test code: letters, digits and spaces only".into(),
-                });
-            }
-        }
-        Ok(out)
-    }
+fn en() -> CodeTable {
+    CodeTable::builtin("en").unwrap()
 }
 
 /// Frames for cells read with the given confidence: each cell two frames,
@@ -459,23 +333,37 @@ fn frames_for(cells: &[(u8, f64, Option<u8>)]) -> Array2<f32> {
     a
 }
 
-/// Cells of `text` as the stand-in code writes it, all read with
-/// probability 0.98.
-fn confident(text: &str) -> Vec<(u8, f64, Option<u8>)> {
-    StandIn
-        .encode(text)
+/// Cells of `text` as `code` writes it, all read with probability 0.98.
+fn confident_in(code: &CodeTable, text: &str) -> Vec<(u8, f64, Option<u8>)> {
+    code.encode(text)
         .unwrap()
         .into_iter()
         .map(|c| (c.mask(), 0.98, None))
         .collect()
 }
 
-fn mask_of(ch: char) -> u8 {
-    letter_mask(ch).unwrap()
+fn confident(text: &str) -> Vec<(u8, f64, Option<u8>)> {
+    confident_in(&en(), text)
 }
+
+/// The one cell of a letter in `code`.
+fn cell_in(code: &CodeTable, ch: char) -> u8 {
+    let cells = code.encode(&ch.to_string()).unwrap();
+    assert_eq!(cells.len(), 1, "{ch} is one cell");
+    cells[0].mask()
+}
+
+fn mask_of(ch: char) -> u8 {
+    cell_in(&en(), ch)
+}
+
+/// Dots 6, the capital indicator of UEB (ICEB, "The Rules of Unified
+/// English Braille", 2nd ed. 2013, section 8).
+const CAPITAL: u8 = 0b10_0000;
 
 #[test]
 fn rescoring_repairs_misread_words_and_keeps_numbers_and_names() {
+    let table = en();
     let lexicon = Lexicon::builtin("en").unwrap();
     // "the cat sat by dog 42 zog": the network reads the `a` of "cat" as
     // `e` (0.6 against 0.4: the reading "cet" is itself a rare listed word),
@@ -492,11 +380,11 @@ fn rescoring_repairs_misread_words_and_keeps_numbers_and_names() {
     cells.extend(confident(" 42 zog"));
     let lp = frames_for(&cells);
 
-    let plain = Decoder::new(&StandIn, BeamParams::default()).unwrap();
+    let plain = Decoder::new(&table, BeamParams::default()).unwrap();
     let raw = plain.decode(lp.view()).unwrap();
     assert_eq!(raw.text, "the cet sat by dpg 42 zog");
 
-    let decoder = Decoder::new(&StandIn, BeamParams::default())
+    let decoder = Decoder::new(&table, BeamParams::default())
         .unwrap()
         .with_lexicon(&lexicon, RescoreWeights::default())
         .unwrap();
@@ -520,12 +408,13 @@ fn rescoring_repairs_misread_words_and_keeps_numbers_and_names() {
 
 #[test]
 fn rescoring_keeps_capitals() {
+    let table = en();
     let lexicon = Lexicon::builtin("en").unwrap();
     let mut cells = vec![(CAPITAL, 0.98, None), (mask_of('c'), 0.98, None)];
     cells.push((mask_of('e'), 0.6, Some(mask_of('a'))));
     cells.push((mask_of('t'), 0.98, None));
     let lp = frames_for(&cells);
-    let decoder = Decoder::new(&StandIn, BeamParams::default())
+    let decoder = Decoder::new(&table, BeamParams::default())
         .unwrap()
         .with_lexicon(&lexicon, RescoreWeights::default())
         .unwrap();
@@ -558,7 +447,7 @@ fn tuning_finds_weights_at_least_as_good_as_no_lexicon() {
         .collect();
     let tuned = tune(
         &items,
-        &StandIn,
+        &en(),
         &lexicon,
         &BeamParams::default(),
         &RescoreWeights::default(),
@@ -626,4 +515,249 @@ fn builtin_lexicons_load_for_every_language() {
     let es = Lexicon::builtin("es").unwrap();
     assert!(es.count("año").is_some() && es.count("también").is_some());
     assert!(Lexicon::builtin("xx").is_err());
+}
+
+/// One crafted recording per language pack: the text's cells read with
+/// confidence, except one letter of one word misread with probability 0.6
+/// against 0.4 for the right letter. The plain beam reads the misread word;
+/// with the pack's lexicon the word is repaired and the rest kept.
+/// Letters: (misread, right) pairs differ by one dot in each pack's table
+/// (checked here through the packs' encoders, not assumed).
+#[test]
+fn packs_decode_and_repair_in_every_language() {
+    let cases = [
+        // lang, truth, word index, letter index, misread letter
+        ("en", "the old house stood near the river", 2, 1, 'e'),
+        ("de", "das kleine haus steht über dem fluss", 2, 1, 'e'),
+        ("fr", "la petite maison était près de la rivière", 2, 1, 'e'),
+        ("es", "la casa pequeña está junto al río", 1, 1, 'e'),
+    ];
+    for (lang, truth, w, k, wrong) in cases {
+        let table = CodeTable::builtin(lang).unwrap();
+        let lexicon = Lexicon::builtin(lang).unwrap();
+        let words: Vec<&str> = truth.split(' ').collect();
+        let mut cells = Vec::new();
+        let mut misread = String::new();
+        for (i, word) in words.iter().enumerate() {
+            if i > 0 {
+                cells.push((0u8, 0.98, None));
+            }
+            if i == w {
+                for (j, ch) in word.chars().enumerate() {
+                    if j == k {
+                        let right = cell_in(&table, ch);
+                        let bad = cell_in(&table, wrong);
+                        assert_eq!((right ^ bad).count_ones(), 1, "{lang}: {ch} vs {wrong}");
+                        cells.push((bad, 0.6, Some(right)));
+                        misread.push(wrong);
+                    } else {
+                        cells.extend(confident_in(&table, &ch.to_string()));
+                        misread.push(ch);
+                    }
+                }
+            } else {
+                cells.extend(confident_in(&table, word));
+            }
+        }
+        let lp = frames_for(&cells);
+        let raw = Decoder::new(&table, BeamParams::default())
+            .unwrap()
+            .decode(lp.view())
+            .unwrap();
+        let mut want_raw: Vec<String> = words.iter().map(|s| s.to_string()).collect();
+        want_raw[w] = misread.clone();
+        assert_eq!(raw.text, want_raw.join(" "), "{lang}");
+        let fixed = Decoder::new(&table, BeamParams::default())
+            .unwrap()
+            .with_lexicon(&lexicon, RescoreWeights::default())
+            .unwrap()
+            .decode(lp.view())
+            .unwrap();
+        assert_eq!(fixed.text, truth, "{lang}: misread {misread:?}");
+    }
+}
+
+#[test]
+fn every_builtin_word_is_written_by_its_pack() {
+    // scripts/make_wordlists.py keeps only words of the packs' letters; the
+    // packs' encoders must agree, or rescoring could never propose them.
+    for lang in tactread::lexicon::BUILTIN_LANGS {
+        let table = CodeTable::builtin(lang).unwrap();
+        let lexicon = Lexicon::builtin(lang).unwrap();
+        let bad: Vec<String> = lexicon
+            .words()
+            .into_iter()
+            .filter(|(w, _)| table.encode(w).is_err())
+            .map(|(w, _)| w)
+            .take(5)
+            .collect();
+        assert!(bad.is_empty(), "{lang}: {bad:?}");
+    }
+}
+
+// ---------------------------------------------------------------------------
+// `tactread lexicon`, through the built binary.
+
+fn tactread(args: &[&str]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_tactread"))
+        .args(args)
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn cli_lexicon_build_info_and_errors() {
+    let dir = std::env::temp_dir().join(format!("tactread-cli-lex-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let words = dir.join("words.txt");
+    let out = dir.join("w.lex");
+    std::fs::write(&words, "harbour\t12\nharbor\t30\nlighthouse\n").unwrap();
+    let (w, o) = (words.to_str().unwrap(), out.to_str().unwrap());
+    let r = tactread(&["lexicon", "build", w, "--out", o, "--lang", "en"]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    assert!(String::from_utf8_lossy(&r.stdout).contains("3 words"));
+    let r = tactread(&["lexicon", "info", o, "--near", "harbeur"]);
+    let text = String::from_utf8_lossy(&r.stdout);
+    assert!(text.contains("harbour\t12\t1 edit"), "{text}");
+    // No overwrite without --force (exit code 4).
+    let r = tactread(&["lexicon", "build", w, "--out", o]);
+    assert_eq!(r.status.code(), Some(4));
+    assert!(tactread(&["lexicon", "build", w, "--out", o, "--force"])
+        .status
+        .success());
+    // A bad line names file and line (exit code 1).
+    std::fs::write(&words, "harbour\t12\nharbor\tmany\n").unwrap();
+    let r = tactread(&["lexicon", "build", w, "--out", o, "--force"]);
+    assert_eq!(r.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&r.stderr);
+    assert!(
+        err.contains("words.txt line 2") && err.contains("count"),
+        "{err}"
+    );
+    // Not a lexicon file (exit code 3).
+    let r = tactread(&["lexicon", "info", w]);
+    assert_eq!(r.status.code(), Some(3));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+/// A small untrained model for `recording`, saved to `path`: its readings
+/// are noise, but every stage of `tactread decode` runs on real shapes.
+fn untrained_model(recording: &std::path::Path, path: &std::path::Path) {
+    use tactread::net::{GruConfig, Model, Network, SensorSummary, TrainingSummary};
+    use tactread::prep::{Prep, PrepConfig};
+    let rec = tactread::recording::Recording::load(recording).unwrap();
+    let prep = Prep::fit(&PrepConfig::default(), &[&rec]).unwrap();
+    let config = GruConfig {
+        inputs: rec.frames.ncols(),
+        hidden: 8,
+        layers: 1,
+        bidirectional: false,
+    };
+    let net = Network::new(config, 5).unwrap();
+    let sensor = SensorSummary {
+        taxels: rec.frames.ncols(),
+        name: None,
+    };
+    Model::new(net, prep, sensor, "en", TrainingSummary::default())
+        .save(path)
+        .unwrap();
+}
+
+#[test]
+fn cli_decode_text_and_json() {
+    let dir = std::env::temp_dir().join(format!("tactread-cli-decode-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let rec = dir.join("rec.json");
+    let model = dir.join("model.json");
+    let r = tactread(&["simulate", "the cat sat", "--out", rec.to_str().unwrap()]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    untrained_model(&rec, &model);
+    let (m, p) = (model.to_str().unwrap(), rec.to_str().unwrap());
+
+    let r = tactread(&["decode", m, p]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    assert!(String::from_utf8_lossy(&r.stderr).contains("verify"));
+    assert_eq!(String::from_utf8_lossy(&r.stdout).lines().count(), 1);
+
+    for (lang, lexicon) in [
+        ("en", "none"),
+        ("de", "builtin"),
+        ("fr", "builtin"),
+        ("es", "none"),
+    ] {
+        let mut args = vec![
+            "decode", m, p, "--format", "json", "--lang", lang, "--beam", "8",
+        ];
+        if lexicon == "none" {
+            args.extend(["--lexicon", "none"]);
+        }
+        let r = tactread(&args);
+        assert!(
+            r.status.success(),
+            "{lang}: {}",
+            String::from_utf8_lossy(&r.stderr)
+        );
+        let doc: serde_json::Value = serde_json::from_slice(&r.stdout).unwrap();
+        let item = &doc["recordings"][0];
+        assert_eq!(item["lang"], lang);
+        assert_eq!(item["rescored"], lexicon != "none");
+        let n_best = item["n_best"].as_array().unwrap();
+        assert!(!n_best.is_empty() && n_best.len() <= 5);
+        assert_eq!(item["beam_text"], n_best[0]["text"]);
+        let c = item["confidence"].as_f64().unwrap();
+        assert!((0.0..=1.0).contains(&c));
+        for cell in item["cells"].as_array().unwrap() {
+            assert_eq!(cell["dot_probs"].as_array().unwrap().len(), 6);
+        }
+    }
+
+    // A lexicon of another language is refused (exit code 3).
+    let words = dir.join("w.txt");
+    let lex = dir.join("de.lex");
+    std::fs::write(&words, "haus\t3\n").unwrap();
+    let r = tactread(&[
+        "lexicon",
+        "build",
+        words.to_str().unwrap(),
+        "--out",
+        lex.to_str().unwrap(),
+        "--lang",
+        "de",
+    ]);
+    assert!(r.status.success());
+    let r = tactread(&["decode", m, p, "--lexicon", lex.to_str().unwrap()]);
+    assert_eq!(
+        r.status.code(),
+        Some(3),
+        "{}",
+        String::from_utf8_lossy(&r.stderr)
+    );
+    // A bad beam width is a usage error (exit code 2).
+    let r = tactread(&["decode", m, p, "--beam", "0"]);
+    assert_eq!(r.status.code(), Some(2));
+
+    // Tuning writes weights that decode reads back. (An untrained model
+    // reads nothing right, so only the mechanics are checked here.)
+    let weights = dir.join("weights.json");
+    let w = weights.to_str().unwrap();
+    let r = tactread(&["lexicon", "tune", m, p, "--out", w, "--beam", "4"]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    assert!(String::from_utf8_lossy(&r.stdout).contains("word accuracy"));
+    let back: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&weights).unwrap()).unwrap();
+    assert!(back["lm_weight"].is_number());
+    let r = tactread(&["decode", m, p, "--weights", w]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    // No overwrite without --force; a damaged weights file names itself.
+    assert_eq!(
+        tactread(&["lexicon", "tune", m, p, "--out", w])
+            .status
+            .code(),
+        Some(4)
+    );
+    std::fs::write(&weights, "{\"lm_weight\": \"high\"}").unwrap();
+    let r = tactread(&["decode", m, p, "--weights", w]);
+    assert_eq!(r.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&r.stderr).contains("weights.json"));
+    std::fs::remove_dir_all(&dir).unwrap();
 }

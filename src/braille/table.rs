@@ -367,6 +367,26 @@ impl CodeTable {
         }
     }
 
+    /// A built-in pack by language tag (`en`, `de`, `fr`, `es`), or a code
+    /// table file by path: what a `--lang` option takes. Anything that is
+    /// neither gives an [`Error::Config`] naming the built-in packs.
+    pub fn resolve(lang_or_path: &str) -> Result<CodeTable> {
+        if Self::builtin_langs().contains(&lang_or_path) {
+            return Self::builtin(lang_or_path);
+        }
+        let path = Path::new(lang_or_path);
+        if path.exists() || lang_or_path.contains(['/', '\\', '.']) {
+            return Self::from_file(path);
+        }
+        Err(Error::config(
+            "--lang",
+            format!(
+                "unknown language `{lang_or_path}`: built in are {}; or give the path of a code table file (see lexicons/README.md)",
+                Self::builtin_langs().join(", ")
+            ),
+        ))
+    }
+
     /// Names of the built-in language packs, in a fixed order.
     pub fn builtin_langs() -> &'static [&'static str] {
         &BUILTIN_LANGS

@@ -7,7 +7,6 @@
 //! (`0` is the empty cell between words), e.g. `6-1235-135-135-134-0-3456-1-12-6-12`.
 
 use std::io::{BufRead, Write};
-use std::path::Path;
 
 use clap::Args as ClapArgs;
 use tactread::{cells_to_unicode, Cell, CodeTable, Error, Location, Result};
@@ -40,7 +39,7 @@ pub struct Args {
 
 /// Run `tactread cells`.
 pub fn run(args: Args) -> Result<()> {
-    let table = load_table(&args.lang)?;
+    let table = CodeTable::resolve(&args.lang)?;
     let stdout = std::io::stdout();
     let mut out = stdout.lock();
     if args.input.is_empty() {
@@ -59,25 +58,6 @@ pub fn run(args: Args) -> Result<()> {
     }
     out.flush()
         .map_err(|e| Error::io("cannot write", "<stdout>", e))
-}
-
-/// A built-in pack by name, or a table file by path.
-fn load_table(lang: &str) -> Result<CodeTable> {
-    if CodeTable::builtin_langs().contains(&lang) {
-        return CodeTable::builtin(lang);
-    }
-    let path = Path::new(lang);
-    let looks_like_path = path.exists() || lang.contains(['/', '\\', '.']);
-    if looks_like_path {
-        return CodeTable::from_file(path);
-    }
-    Err(Error::config(
-        "--lang",
-        format!(
-            "unknown language `{lang}`: built in are {}; or give the path of a code table file (see lexicons/README.md)",
-            CodeTable::builtin_langs().join(", ")
-        ),
-    ))
 }
 
 fn write_line(out: &mut impl Write, text: &str) -> Result<()> {
@@ -175,7 +155,7 @@ fn parse_dots(line: &str, source: &str, no: usize) -> Result<Vec<Cell>> {
         let mut dots = Vec::new();
         for c in token.chars() {
             match c.to_digit(10) {
-                Some(d @ 1..=8) if dots.last().map_or(true, |&l| l < d as u8) => dots.push(d as u8),
+                Some(d @ 1..=8) if dots.last().is_none_or(|&l| l < d as u8) => dots.push(d as u8),
                 Some(1..=8) => return Err(bad("repeats a dot or is out of order")),
                 _ => return Err(bad("is not a cell of dot numbers")),
             }

@@ -21,6 +21,33 @@ enum Command {
     /// Print what a lexicon file holds; with --near, the words close to a
     /// query.
     Info(InfoArgs),
+    /// Tune the word-rescoring weights on recordings whose manifests hold
+    /// their text (grid search maximising word accuracy).
+    Tune(TuneArgs),
+}
+
+#[derive(Debug, ClapArgs)]
+struct TuneArgs {
+    /// The model file.
+    model: PathBuf,
+    /// Validation recordings (manifests with a `text`).
+    #[arg(required = true)]
+    recordings: Vec<PathBuf>,
+    /// Language pack (default: the model's).
+    #[arg(long)]
+    lang: Option<String>,
+    /// Lexicon file (default: the language's builtin lexicon).
+    #[arg(long)]
+    lexicon: Option<PathBuf>,
+    /// Beam width (default 16).
+    #[arg(long, default_value_t = 16)]
+    beam: usize,
+    /// Where to write the weights (JSON, for `tactread decode --weights`).
+    #[arg(long)]
+    out: PathBuf,
+    /// Overwrite an existing output file.
+    #[arg(long)]
+    force: bool,
 }
 
 #[derive(Debug, ClapArgs)]
@@ -55,6 +82,7 @@ pub fn run(args: Args) -> Result<()> {
     match args.command {
         Command::Build(a) => build(a),
         Command::Info(a) => info(a),
+        Command::Tune(a) => tune(a),
     }
 }
 
@@ -114,4 +142,90 @@ fn info(a: InfoArgs) -> Result<()> {
         }
     }
     Ok(())
+}
+
+fn tune(a: TuneArgs) -> Result<()> {
+    use tactread::braille::CodeTable;
+    use tactread::decode::BeamParams;
+    use tactread::lexicon::{RescoreWeights, TuneItem, WeightGrid};
+    use tactread::net::Model;
+    use tactread::recording::Recording;
+    if a.out.exists() && !a.force {
+        return Err(Error::Output {
+            path: a.out,
+            reason: "the file exists: pass --force to overwrite it".into(),
+        });
+    }
+    let model = Model::load(&a.model)?;
+    let lang = a.lang.clone().unwrap_or_else(|| model.lang.clone());
+    let table = CodeTable::builtin(&lang)?;
+    let lexicon = match &a.lexicon {
+        Some(p) => Lexicon::load(p)?,
+        None => Lexicon::builtin(&lang)?,
+    };
+    let mut outputs = Vec::new();
+    for path in &a.recordings {
+        let name = path.display().to_string();
+        let rec = Recording::load(path)?;
+        let truth = rec.manifest.text.clone().ok_or_else(|| {
+            Error::input(
+                tactread::Location::file(path).field("text"),
+                "the manifest gives no text: tuning needs recordings whose text is known",
+            )
+        })?;
+        outputs.push((super::decode::network_output(&model, &rec, &name)?, truth));
+    }
+    let items: Vec<TuneItem> = outputs
+        .iter()
+        .map(|(lp, truth)| TuneItem {
+            log_probs: lp.view(),
+            truth,
+        })
+        .collect();
+    let beam = BeamParams {
+        beam_width: a.beam,
+        ..BeamParams::default()
+    };
+    let tuned = tactread::lexicon::tune(
+        &items,
+        &table,
+        &lexicon,
+        &beam,
+        &RescoreWeights::default(),
+        &WeightGrid::default(),
+    )?;
+    let json = serde_json::to_string_pretty(&tuned.weights).unwrap_or_default();
+    write_atomic(&a.out, format!("{json}\n").as_bytes())?;
+    println!(
+        "{}: word accuracy {:.1}% with these weights, {:.1}% without the lexicon ({} recordings, {} grid points)",
+        a.out.display(),
+        100.0 * tuned.word_accuracy,
+        100.0 * tuned.raw_word_accuracy,
+        items.len(),
+        tuned.tried
+    );
+    Ok(())
+}
+
+/// Write `bytes` to `path` through a temporary file in the same folder,
+/// then a rename.
+fn write_atomic(path: &std::path::Path, bytes: &[u8]) -> Result<()> {
+    let dir = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "out".into());
+    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    let result = std::fs::write(&tmp, bytes)
+        .map_err(|e| Error::io("cannot write", &tmp, e))
+        .and_then(|_| {
+            std::fs::rename(&tmp, path).map_err(|e| Error::io("cannot rename into", path, e))
+        });
+    if result.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result
 }

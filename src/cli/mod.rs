@@ -7,11 +7,13 @@ use tactread::Result;
 
 mod cells;
 mod compare;
+mod decode;
 mod demo;
 mod inspect;
 mod lexicon;
 mod show;
 mod simulate;
+mod train;
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]
@@ -25,6 +27,8 @@ pub struct Cli {
 enum Command {
     /// Run the whole job on the embedded default data and model.
     Demo(demo::Args),
+    /// Read recordings with a trained model: ranked text with alternatives.
+    Decode(decode::Args),
     /// Build lexicon files from word lists and look into them.
     Lexicon(lexicon::Args),
     /// Write text as braille cells, or read braille cells back as text.
@@ -37,17 +41,21 @@ enum Command {
     Compare(compare::Args),
     /// Draw one recording's taxel signals with its ground-truth cells as an SVG file.
     Show(show::Args),
+    /// Train a reading model on a dataset folder.
+    Train(Box<train::Args>),
 }
 
 /// Run the parsed command line.
 pub fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Demo(args) => demo::run(args),
+        Command::Decode(args) => decode::run(args),
         Command::Lexicon(args) => lexicon::run(args),
         Command::Cells(args) => cells::run(args),
         Command::Inspect(args) => inspect::run(args),
         Command::Simulate(args) => simulate::run(*args),
         Command::Compare(args) => compare::run(args),
         Command::Show(args) => show::run(args),
+        Command::Train(args) => train::run(*args),
     }
 }

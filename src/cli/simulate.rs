@@ -210,24 +210,6 @@ fn parse_split(s: &str) -> Result<[f64; 3]> {
     Ok(out)
 }
 
-/// A built-in code table by language name, or a table file by path.
-fn load_table(lang: &str) -> Result<CodeTable> {
-    if CodeTable::builtin_langs().contains(&lang) {
-        return CodeTable::builtin(lang);
-    }
-    let path = Path::new(lang);
-    if path.exists() || lang.contains(['/', '\\', '.']) {
-        return CodeTable::from_file(path);
-    }
-    Err(Error::config(
-        "--lang",
-        format!(
-            "unknown language `{lang}`: built in are {}; or give the path of a code table file (see lexicons/README.md)",
-            CodeTable::builtin_langs().join(", ")
-        ),
-    ))
-}
-
 /// The checked simulator and the speed range from the shared options.
 fn build(sim: &SimArgs) -> Result<(Simulator, [f64; 2])> {
     let preset = Preset::from_name(&sim.preset)?;
@@ -337,7 +319,7 @@ fn run_single(args: Args) -> Result<()> {
         )
     })?;
     let (sim, speed) = build(&args.sim)?;
-    let table = load_table(&args.lang)?;
+    let table = CodeTable::resolve(&args.lang)?;
     let (text, origin) = match &args.text_file {
         Some(path) => {
             let lines = read_lines(path)?;
@@ -458,7 +440,7 @@ fn run_dataset(args: DatasetArgs) -> Result<()> {
     let lines = match &args.text_file {
         Some(path) => {
             let lang = args.lang.as_deref().unwrap_or("en");
-            let table = load_table(lang)?;
+            let table = CodeTable::resolve(lang)?;
             let mut raw = read_lines(path)?;
             if raw.is_empty() {
                 return Err(Error::input(

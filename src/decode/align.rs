@@ -13,7 +13,7 @@ use crate::Cell;
 /// the blank, `Some(mask)` for cell `(s - 1) / 2`.
 #[inline]
 fn label(cells: &[Cell], s: usize) -> Option<u8> {
-    if s % 2 == 0 {
+    if s.is_multiple_of(2) {
         None
     } else {
         Some(cells[s / 2].mask())
@@ -107,8 +107,16 @@ pub(crate) struct CellPosterior {
 
 /// Positions whose scaled forward value falls below this (relative to the
 /// frame's total 1) are dropped from the band: alignments that improbable
-/// cannot move a posterior or the likelihood by a visible amount.
-const BAND_FLOOR: f64 = 1e-40;
+/// cannot move a posterior or the likelihood by a visible amount (unless
+/// later frames single them out as the only way to finish, which needs a
+/// labelling the frames barely support; the likelihood would then come out
+/// low, never high).
+const BAND_FLOOR: f64 = 1e-15;
+
+/// Frames whose posterior of emitting a cell is below this do not enter
+/// the cell's pattern distribution `q` (they would shift it by less than
+/// this share each; skipping them saves 64 products per frame).
+const Q_FLOOR: f64 = 1e-4;
 
 /// Forward-backward over all frames for `cells`: the log-likelihood and
 /// every cell's posterior summary. `None` when the cells cannot be aligned
@@ -265,6 +273,9 @@ pub(crate) fn posteriors(frames: &Pruned, cells: &[Cell]) -> Option<(f64, Vec<Ce
                 }
                 let post = &mut out[i];
                 post.weight += g;
+                if g < Q_FLOOR {
+                    continue;
+                }
                 if g >= 0.5 {
                     post.frames.0 = post.frames.0.min(t);
                     post.frames.1 = post.frames.1.max(t);
@@ -305,7 +316,7 @@ mod tests {
                 a[[t, c]] = (p as f32).ln();
             }
         }
-        prune(&a.view(), 0.0, 64, 1.0)
+        prune(&a.view(), 0.0, 64, 1.0).unwrap()
     }
 
     #[test]

@@ -24,6 +24,19 @@ const MAX_LOG_PROB: f32 = 1e-4;
 /// probabilities: 65 columns, no NaN or +inf, each row summing to 1 in
 /// probability. `-inf` (probability 0) is allowed.
 pub(crate) fn check(log_probs: &ArrayView2<f32>) -> Result<()> {
+    check_width(log_probs)?;
+    for (t, row) in log_probs.outer_iter().enumerate() {
+        let mut sum = 0f64;
+        for (c, &v) in row.iter().enumerate() {
+            check_value(t, c, v)?;
+            sum += (v as f64).exp();
+        }
+        check_sum(t, sum)?;
+    }
+    Ok(())
+}
+
+fn check_width(log_probs: &ArrayView2<f32>) -> Result<()> {
     if log_probs.ncols() != N_CLASSES {
         return Err(Error::Mismatch {
             what: "columns of the decoder input".into(),
@@ -32,36 +45,34 @@ pub(crate) fn check(log_probs: &ArrayView2<f32>) -> Result<()> {
             hint: "pass the network's [n_frames, 65] log-probability output".into(),
         });
     }
-    let at = |t: usize, c: Option<usize>| {
-        let loc = Location::file("<decoder input>").line(t + 1);
-        match c {
-            Some(c) => loc.field(format!("column {c}")),
-            None => loc,
-        }
-    };
-    for (t, row) in log_probs.outer_iter().enumerate() {
-        let mut sum = 0f64;
-        for (c, &v) in row.iter().enumerate() {
-            if v.is_nan() || v > MAX_LOG_PROB {
-                return Err(Error::input(
-                    at(t, Some(c)),
-                    format!(
-                        "{v} is not a natural-log probability (must be <= 0 or -inf): \
-                         pass log-softmax output, not logits"
-                    ),
-                ));
-            }
-            sum += (v as f64).exp();
-        }
-        if (sum - 1.0).abs() > SUM_TOLERANCE {
-            return Err(Error::input(
-                at(t, None),
-                format!(
-                    "the frame's 65 probabilities sum to {sum:.4}, not 1: \
-                     pass normalised log-probabilities (log-softmax), not logits"
-                ),
-            ));
-        }
+    Ok(())
+}
+
+#[inline]
+fn check_value(t: usize, c: usize, v: f32) -> Result<()> {
+    if v.is_nan() || v > MAX_LOG_PROB {
+        return Err(Error::input(
+            Location::file("<decoder input>")
+                .line(t + 1)
+                .field(format!("column {c}")),
+            format!(
+                "{v} is not a natural-log probability (must be <= 0 or -inf): \
+                 pass log-softmax output, not logits"
+            ),
+        ));
+    }
+    Ok(())
+}
+
+fn check_sum(t: usize, sum: f64) -> Result<()> {
+    if (sum - 1.0).abs() > SUM_TOLERANCE {
+        return Err(Error::input(
+            Location::file("<decoder input>").line(t + 1),
+            format!(
+                "the frame's 65 probabilities sum to {sum:.4}, not 1: \
+                 pass normalised log-probabilities (log-softmax), not logits"
+            ),
+        ));
     }
     Ok(())
 }
@@ -93,7 +104,8 @@ impl Pruned {
     }
 }
 
-/// Prune each frame of a checked `[n_frames, 65]` array: a frame whose blank
+/// Check (as [`check`]) and prune each frame of a `[n_frames, 65]` array in
+/// one pass: a frame whose blank
 /// probability exceeds `blank_skip` tries no pattern at all; otherwise the
 /// patterns with probability at least `min_prob` (and always the most
 /// probable one), at most `max_classes` of them, most probable first.
@@ -102,7 +114,8 @@ pub(crate) fn prune(
     min_prob: f64,
     max_classes: usize,
     blank_skip: f64,
-) -> Pruned {
+) -> Result<Pruned> {
+    check_width(log_probs)?;
     let n = log_probs.nrows();
     let mut out = Pruned {
         blank: Vec::with_capacity(n),
@@ -113,14 +126,18 @@ pub(crate) fn prune(
     };
     out.start.push(0);
     let mut row_c: Vec<(u8, f64)> = Vec::with_capacity(64);
-    for row in log_probs.outer_iter() {
+    for (t, row) in log_probs.outer_iter().enumerate() {
+        check_value(t, BLANK, row[BLANK])?;
         let blank = (row[BLANK] as f64).exp();
         out.blank.push(blank);
         row_c.clear();
         let skip = blank > blank_skip;
         let (mut top, mut top_p) = (0u8, -1f64);
+        let mut sum = blank;
         for m in 0..64 {
+            check_value(t, m, row[m])?;
             let p = (row[m] as f64).exp();
+            sum += p;
             out.all.push(p);
             if !skip {
                 if p >= min_prob {
@@ -131,6 +148,7 @@ pub(crate) fn prune(
                 }
             }
         }
+        check_sum(t, sum)?;
         if !skip && row_c.is_empty() && top_p > 0.0 {
             row_c.push((top, top_p));
         }
@@ -142,7 +160,7 @@ pub(crate) fn prune(
         }
         out.start.push(out.class.len());
     }
-    out
+    Ok(out)
 }
 
 #[cfg(test)]
@@ -183,10 +201,10 @@ mod tests {
         a[[0, 7]] = (0.3f32).ln();
         a[[0, 9]] = (0.2f32).ln();
         a[[1, BLANK]] = 0.0;
-        let p = prune(&a.view(), 1e-3, 8, 0.999);
+        let p = prune(&a.view(), 1e-3, 8, 0.999).unwrap();
         assert_eq!(p.candidates(0).0, &[7, 9]);
         assert!(p.candidates(1).0.is_empty());
-        let p = prune(&a.view(), 1e-9, 3, 0.999);
+        let p = prune(&a.view(), 1e-9, 3, 0.999).unwrap();
         assert_eq!(p.candidates(0).0.len(), 3);
     }
 }

@@ -204,8 +204,7 @@ pub fn greedy_decode(log_probs: ArrayView2<f32>) -> Result<Vec<Cell>> {
 /// `params.n_best` most probable cell sequences, best first.
 pub fn beam_search(log_probs: ArrayView2<f32>, params: &BeamParams) -> Result<Vec<CellHypothesis>> {
     params.check()?;
-    frames::check(&log_probs)?;
-    let pruned = prune(&log_probs, params);
+    let pruned = prune(&log_probs, params)?;
     let found = search::search(&pruned, search::NoReader, params, false, false);
     Ok(found
         .into_iter()
@@ -225,8 +224,7 @@ pub fn cell_evidence(
     log_probs: ArrayView2<f32>,
     cells: &[Cell],
 ) -> Result<(f64, Vec<CellEvidence>)> {
-    frames::check(&log_probs)?;
-    let pruned = frames::prune(&log_probs, 1.0, 1, 0.0);
+    let pruned = frames::prune(&log_probs, 1.0, 1, 0.0)?;
     let (ll, post) = align::posteriors(&pruned, cells)
         .ok_or_else(|| unalignable(cells.len(), pruned.n_frames()))?;
     Ok((ll, evidence(cells, &post)))
@@ -243,17 +241,15 @@ fn unalignable(n_cells: usize, n_frames: usize) -> crate::Error {
 
 /// Check `log_probs` and keep only its probabilities (no candidate lists).
 pub(crate) fn checked_probabilities(log_probs: &ArrayView2<f32>) -> Result<Pruned> {
-    frames::check(log_probs)?;
-    Ok(frames::prune(log_probs, 1.0, 1, 0.0))
+    frames::prune(log_probs, 1.0, 1, 0.0)
 }
 
 /// Check `log_probs` and prune its frames for a search with `params`.
 pub(crate) fn checked_pruned(log_probs: &ArrayView2<f32>, params: &BeamParams) -> Result<Pruned> {
-    frames::check(log_probs)?;
-    Ok(prune(log_probs, params))
+    prune(log_probs, params)
 }
 
-fn prune(log_probs: &ArrayView2<f32>, params: &BeamParams) -> Pruned {
+fn prune(log_probs: &ArrayView2<f32>, params: &BeamParams) -> Result<Pruned> {
     frames::prune(
         log_probs,
         params.min_cell_prob,
@@ -300,8 +296,12 @@ fn top_patterns(q: &[f64; 64], n: usize) -> Vec<(Cell, f64)> {
         .filter(|(_, &p)| p > 0.0)
         .map(|(m, &p)| (Cell::from_mask(m as u8), p))
         .collect();
-    all.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
-    all.truncate(n);
+    let order = |a: &(Cell, f64), b: &(Cell, f64)| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0));
+    if all.len() > n && n > 0 {
+        all.select_nth_unstable_by(n - 1, order);
+        all.truncate(n);
+    }
+    all.sort_by(order);
     all
 }
 
@@ -314,8 +314,7 @@ pub fn read<R: CodeReader>(
     params: &BeamParams,
 ) -> Result<Reading> {
     params.check()?;
-    frames::check(&log_probs)?;
-    let pruned = prune(&log_probs, params);
+    let pruned = prune(&log_probs, params)?;
     read_pruned(&pruned, reader, params)
 }
 

@@ -297,6 +297,33 @@ pub(crate) fn search<R: CodeReader>(
     for t in 0..frames.n_frames() {
         let blank = frames.blank[t];
         let (cands, probs) = frames.candidates(t);
+        if cands.is_empty() {
+            // A frame that tries no extension (blank above `blank_skip`):
+            // every prefix only stays, so the set of hypotheses is unchanged
+            // and needs no hashing, merging or cutting.
+            let mut max = 0f64;
+            for h in beam.iter_mut() {
+                let total = h.total();
+                h.pnb = if h.last == NO_CELL {
+                    0.0
+                } else {
+                    h.pnb * frames.p(t, h.last)
+                };
+                h.pb = total * blank;
+                max = max.max(h.total());
+            }
+            if !(max > 0.0 && max.is_finite()) {
+                return Vec::new();
+            }
+            log_scale += max.ln();
+            let inv = 1.0 / max;
+            for h in beam.iter_mut() {
+                h.pb *= inv;
+                h.pnb *= inv;
+            }
+            beam.retain(|h| h.total() >= floor);
+            continue;
+        }
         next.clear();
         index.clear();
         let mut add = |next: &mut Vec<Hyp>, cnode: u32, last: u8, pb: f64, pnb: f64| match index
@@ -350,6 +377,16 @@ pub(crate) fn search<R: CodeReader>(
         }
         next.retain(|h| h.total() >= floor);
         keep_top(&mut next, 2 * params.beam_width);
+        // Only extensions into tree nodes that were not in the beam can
+        // change the set of texts; otherwise the beam was merged already.
+        let extended = next
+            .iter()
+            .any(|h| !beam.iter().any(|b| b.cnode == h.cnode));
+        if !extended {
+            keep_top(&mut next, params.beam_width);
+            std::mem::swap(&mut beam, &mut next);
+            continue;
+        }
         // Run the reader on the new tree nodes among the survivors.
         for h in &next {
             let node = h.cnode as usize;

@@ -30,11 +30,14 @@
 //!
 //! The four builtin languages' word lists (`lexicons/<lang>/words.txt`,
 //! made from wordfreq data by `scripts/make_wordlists.py`) are embedded in
-//! the binary as text and compiled when first asked for: parsing 40,000
-//! lines and building the fst takes a few tens of milliseconds (see
-//! docs/benchmarks.md, "Decoder"), far below a network forward pass, and it
-//! keeps one source of truth in the repository instead of a binary file that
-//! can fall out of step with it.
+//! the binary as text and compiled when [`Lexicon::builtin`] is called:
+//! parsing 40,000 lines and building the fst takes about 0.1 s on the
+//! project machine (see docs/benchmarks.md, "Decoder"), once per process and
+//! about what the network needs for a few seconds of recording. That keeps
+//! one source of truth in the repository (the text list, reviewable in a
+//! diff) instead of a binary file that can fall out of step with it; a user
+//! who decodes many short files in separate processes can build the `.lex`
+//! once with `tactread lexicon build` and pass it instead.
 
 mod rescore;
 
@@ -44,12 +47,12 @@ pub use rescore::{
 
 pub(crate) use rescore::rescore_pruned;
 
+use crate::fsutil::write_atomic;
 use crate::{Error, Location, Result};
-use fst::automaton::Levenshtein;
 use fst::{IntoStreamer, Map, MapBuilder, Streamer};
-use std::collections::BTreeMap;
-use std::io::Write;
+use std::collections::{BTreeMap, HashMap};
 use std::path::{Path, PathBuf};
+use std::sync::Mutex;
 
 /// Format tag at the start of every lexicon file.
 pub const FORMAT_TAG: &[u8; 16] = b"tactread-lexicon";
@@ -136,10 +139,17 @@ pub struct Lexicon {
     map: Map<Vec<u8>>,
     total: u64,
     lang: String,
+    /// Results of [`Lexicon::near`] by (query, edits): running words repeat
+    /// (Zipf), and building a Levenshtein automaton costs far more than a
+    /// lookup. Cleared when it reaches `NEAR_CACHE` entries.
+    near_cache: Mutex<HashMap<(String, u32), Vec<NearWord>>>,
     /// Length in bytes of the longest word (0 when empty): no query with
     /// more characters than this plus the edit budget can be near a word.
     max_word_bytes: usize,
 }
+
+/// Most entries kept in a lexicon's near-word cache.
+const NEAR_CACHE: usize = 20_000;
 
 impl std::fmt::Debug for Lexicon {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
@@ -189,6 +199,7 @@ impl Lexicon {
             map,
             total,
             lang: lang.to_string(),
+            near_cache: Mutex::default(),
             max_word_bytes,
         })
     }
@@ -257,52 +268,62 @@ impl Lexicon {
     }
 
     /// Every listed word within `max_edits` character edits (insertions,
-    /// deletions, substitutions) of `query` (folded to lower case), found
-    /// with the fst crate's Levenshtein automaton; nearest first, then most
-    /// frequent. When the automaton for `max_edits` would be too large, the
-    /// search falls back to fewer edits. A query longer than the longest
-    /// listed word by more than `max_edits` characters can be near no word
-    /// and is answered without building an automaton (whose size grows with
-    /// the query: before this check a 3,000-character query against the
-    /// builtin English list took 2.6 s and 270 MB).
+    /// deletions, substitutions) of `query` (folded to lower case), found by
+    /// running a Levenshtein automaton over the fst (our own lazy one, see
+    /// the source for why not fst's); nearest first, then most frequent.
     pub fn near(&self, query: &str, max_edits: u32) -> Vec<NearWord> {
         let q = query.to_lowercase();
+        // A query longer than the longest listed word by more than
+        // `max_edits` characters can be near no word.
         let reach = self.max_word_bytes.saturating_add(max_edits as usize);
         if q.chars().count() > reach {
             return Vec::new();
         }
-        let mut d = max_edits;
-        let lev = loop {
-            match Levenshtein::new(&q, d) {
-                Ok(l) => break Some(l),
-                Err(_) if d > 0 => d -= 1,
-                Err(_) => break None,
+        let key = (q, max_edits);
+        if let Ok(cache) = self.near_cache.lock() {
+            if let Some(hit) = cache.get(&key) {
+                return hit.clone();
+            }
+        }
+        let out = self.near_uncached(&key.0, max_edits);
+        if let Ok(mut cache) = self.near_cache.lock() {
+            if cache.len() >= NEAR_CACHE {
+                cache.clear();
+            }
+            cache.insert(key, out.clone());
+        }
+        out
+    }
+
+    /// Forget the results [`Lexicon::near`] remembers (it keeps up to
+    /// 20,000 queries, since running text repeats its words); for
+    /// benchmarks that must time cold lookups.
+    pub fn clear_cache(&self) {
+        if let Ok(mut cache) = self.near_cache.lock() {
+            cache.clear();
+        }
+    }
+
+    fn near_uncached(&self, q: &str, max_edits: u32) -> Vec<NearWord> {
+        let mut out = Vec::new();
+        let mut collect = |k: &[u8], count: u64| {
+            if let Ok(word) = std::str::from_utf8(k) {
+                out.push(NearWord {
+                    word: word.to_string(),
+                    count,
+                    edits: strsim::levenshtein(q, word),
+                });
             }
         };
-        let mut out = Vec::new();
-        match lev {
-            Some(lev) => {
-                let mut stream = self.map.search(lev).into_stream();
-                while let Some((k, count)) = stream.next() {
-                    if let Ok(word) = std::str::from_utf8(k) {
-                        let edits = strsim::levenshtein(&q, word);
-                        out.push(NearWord {
-                            word: word.to_string(),
-                            count,
-                            edits,
-                        });
-                    }
-                }
-            }
-            None => {
-                if let Some(count) = self.map.get(&q) {
-                    out.push(NearWord {
-                        word: q.clone(),
-                        count,
-                        edits: 0,
-                    });
-                }
-            }
+        // Our own lazy automaton rather than fst's `Levenshtein`: fst 0.4.7's
+        // DFA misses neighbours whose differing characters share a UTF-8
+        // lead byte (German "grösse" -> "grüsse", see the tests), and its
+        // construction costs milliseconds for two edits. The lazy one
+        // computes only the rows the search visits.
+        let lev = LazyLevenshtein::new(q, max_edits);
+        let mut stream = self.map.search(&lev).into_stream();
+        while let Some((k, count)) = stream.next() {
+            collect(k, count);
         }
         out.sort_by(|a, b| {
             a.edits
@@ -381,6 +402,7 @@ impl Lexicon {
             map,
             total,
             lang,
+            near_cache: Mutex::default(),
             max_word_bytes,
         })
     }
@@ -410,34 +432,115 @@ fn fst_detail(e: &fst::Error) -> String {
     text.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
-/// Write `bytes` to `path` through a temporary file in the same folder.
-pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "out".into());
-    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    let result = (|| {
-        let mut f = std::fs::File::create(&tmp).map_err(|e| Error::io("cannot create", &tmp, e))?;
-        f.write_all(bytes)
-            .map_err(|e| Error::io("cannot write", &tmp, e))?;
-        f.sync_all()
-            .map_err(|e| Error::io("cannot write", &tmp, e))?;
-        std::fs::rename(&tmp, path).map_err(|e| Error::io("cannot rename into", path, e))
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
+/// A Levenshtein automaton over UTF-8 bytes that computes the edit-distance
+/// row of each character as the fst search reaches it (the classic
+/// dynamic-programming walk of a trie; Levenshtein 1966 distance, Wagner and
+/// Fischer 1974 recurrence), for use with [`fst::Map::search`]. Queries of
+/// more than [`MAX_QUERY`] characters match nothing.
+pub(crate) struct LazyLevenshtein {
+    query: Vec<char>,
+    dist: u8,
+}
+
+/// Longest query [`LazyLevenshtein`] searches for.
+pub(crate) const MAX_QUERY: usize = 31;
+
+/// A row of distances from the query's prefixes (capped at `dist + 1`),
+/// plus the bytes of a character not yet complete. Fixed-size, so states
+/// are copied, never allocated.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct LevState {
+    row: [u8; MAX_QUERY + 1],
+    pending: [u8; 4],
+    len: u8,
+}
+
+impl LazyLevenshtein {
+    pub(crate) fn new(query: &str, dist: u32) -> Self {
+        LazyLevenshtein {
+            query: query.chars().collect(),
+            dist: dist.min(254) as u8,
+        }
     }
-    result
+}
+
+fn utf8_width(first: u8) -> usize {
+    match first {
+        0x00..=0x7F => 1,
+        0xC0..=0xDF => 2,
+        0xE0..=0xEF => 3,
+        _ => 4,
+    }
+}
+
+impl fst::Automaton for LazyLevenshtein {
+    type State = Option<LevState>;
+
+    fn start(&self) -> Option<LevState> {
+        let n = self.query.len();
+        if n > MAX_QUERY {
+            return None;
+        }
+        let mut row = [0u8; MAX_QUERY + 1];
+        for (i, r) in row.iter_mut().enumerate().take(n + 1) {
+            *r = (i as u8).min(self.dist + 1);
+        }
+        Some(LevState {
+            row,
+            pending: [0; 4],
+            len: 0,
+        })
+    }
+
+    fn is_match(&self, state: &Option<LevState>) -> bool {
+        state
+            .as_ref()
+            .is_some_and(|s| s.len == 0 && s.row[self.query.len()] <= self.dist)
+    }
+
+    fn can_match(&self, state: &Option<LevState>) -> bool {
+        state.is_some()
+    }
+
+    fn accept(&self, state: &Option<LevState>, byte: u8) -> Option<LevState> {
+        let s = state.as_ref()?;
+        let mut next = *s;
+        let len = s.len as usize;
+        if len >= 4 {
+            return None;
+        }
+        next.pending[len] = byte;
+        let len = len + 1;
+        if len < utf8_width(next.pending[0]) {
+            next.len = len as u8;
+            return Some(next);
+        }
+        let ch = std::str::from_utf8(&next.pending[..len])
+            .ok()?
+            .chars()
+            .next()?;
+        let cap = self.dist + 1;
+        next.row[0] = s.row[0].saturating_add(1).min(cap);
+        let mut alive = next.row[0] <= self.dist;
+        for (i, &q) in self.query.iter().enumerate() {
+            let sub = s.row[i] + u8::from(q != ch);
+            let v = sub.min(s.row[i + 1] + 1).min(next.row[i] + 1).min(cap);
+            next.row[i + 1] = v;
+            alive |= v <= self.dist;
+        }
+        if !alive {
+            return None;
+        }
+        next.pending = [0; 4];
+        next.len = 0;
+        Some(next)
+    }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use fst::automaton::Levenshtein;
 
     fn lex(text: &str) -> Lexicon {
         Lexicon::from_entries(&parse_word_list(text, Path::new("t.txt")).unwrap(), "en").unwrap()
@@ -484,6 +587,53 @@ mod tests {
         );
         assert!(l.near("dgo", 1).is_empty());
         assert_eq!(l.near("dgo", 2)[0].word, "dog");
+    }
+
+    /// Words within `d` edits of `q` by brute force with strsim (a
+    /// general-purpose reference implementation of Levenshtein distance).
+    fn brute(l: &Lexicon, q: &str, d: usize) -> Vec<String> {
+        l.words()
+            .into_iter()
+            .map(|(w, _)| w)
+            .filter(|w| strsim::levenshtein(q, w) <= d)
+            .collect()
+    }
+
+    #[test]
+    fn near_agrees_with_brute_force() {
+        let l = Lexicon::builtin("de").unwrap();
+        for q in ["haus", "strase", "übr", "grösse", "xyzzy", "fluss"] {
+            for d in [1u32, 2] {
+                let mut got: Vec<String> = l.near(q, d).into_iter().map(|n| n.word).collect();
+                got.sort();
+                assert_eq!(got, brute(&l, q, d as usize), "{q} within {d}");
+            }
+        }
+    }
+
+    #[test]
+    fn fst_levenshtein_misses_some_non_ascii_neighbours() {
+        // Why `near` uses its own automaton: fst 0.4.7's DFA leaves out
+        // "bär" (distance 2 from "übr": delete ü, insert ä) and "grüsse"
+        // (distance 1 from "grösse") that strsim and the lazy automaton find.
+        let l = Lexicon::builtin("de").unwrap();
+        assert_eq!(strsim::levenshtein("übr", "bär"), 2);
+        let lev = Levenshtein::new("übr", 2).unwrap();
+        let mut s = l.map.search(lev).into_stream();
+        let mut fst_found = false;
+        while let Some((k, _)) = s.next() {
+            fst_found |= k == "bär".as_bytes();
+        }
+        assert!(!fst_found);
+        assert!(l.near("übr", 2).iter().any(|n| n.word == "bär"));
+        let lev = Levenshtein::new("grösse", 1).unwrap();
+        let mut s = l.map.search(lev).into_stream();
+        let mut fst_found = false;
+        while let Some((k, _)) = s.next() {
+            fst_found |= k == "grüsse".as_bytes();
+        }
+        assert!(!fst_found);
+        assert!(l.near("grösse", 1).iter().any(|n| n.word == "grüsse"));
     }
 
     #[test]

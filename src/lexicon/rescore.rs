@@ -20,6 +20,11 @@
 //! read unless a listed word explains the frames nearly as well. Words
 //! without letters (numbers, punctuation) are never rescored.
 //!
+//! To save time, [`rescore`] does not write out and score a candidate that
+//! could only win if its evidence beat the beam's own cells by more than 3
+//! nats (the beam's cells are, nearly always, the best explanation of the
+//! span); [`tune`] scores every candidate.
+//!
 //! The evidence is the CTC forward probability of the candidate's cells over
 //! the span's frames (Graves et al. 2006, equations 5-8); the span runs from
 //! the frame after the preceding space cell's emission to the frame before
@@ -34,7 +39,8 @@ use ndarray::ArrayView2;
 /// Weights of word rescoring. Defaults are the values tuned on the
 /// synthetic validation set of `benches/decode.rs`'s generator; tune them on
 /// your own recordings with [`tune`].
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct RescoreWeights {
     /// Weight of the lexicon log-probability. Default 1.0.
     pub lm_weight: f64,
@@ -45,8 +51,10 @@ pub struct RescoreWeights {
     /// Lexicon log-probability given to a raw reading the lexicon does not
     /// hold. Default -16.0 (about ln 1e-7).
     pub oov_log_prob: f64,
-    /// Largest edit distance searched, for words of 5 letters or more
-    /// (words of 2-4 letters search 1 edit). Default 2.
+    /// Largest edit distance searched, for words of 5 letters or more that
+    /// the lexicon does not hold (listed words and words of 2-4 letters
+    /// search 1 edit: a listed reading is probably right, and the automaton
+    /// for 2 edits costs milliseconds to build). Default 2.
     pub max_edits: u32,
     /// Words with fewer letters than this are left as read. Default 2.
     pub min_letters: usize,
@@ -89,10 +97,10 @@ impl RescoreWeights {
         Ok(())
     }
 
-    fn edits_for(&self, letters: usize) -> u32 {
+    fn edits_for(&self, letters: usize, listed: bool) -> u32 {
         if letters < self.min_letters.max(1) {
             0
-        } else if letters <= 4 {
+        } else if letters <= 4 || listed {
             self.max_edits.min(1)
         } else {
             self.max_edits
@@ -128,7 +136,8 @@ pub struct WordChoice {
     pub cells: (usize, usize),
     /// Range of frames scored, end exclusive.
     pub frames: (usize, usize),
-    /// The raw reading and the best candidates, best first (at most 5).
+    /// The raw reading and the best candidates that were scored, best
+    /// first (at most 5).
     pub candidates: Vec<WordCandidate>,
 }
 
@@ -140,6 +149,10 @@ pub struct Rescored {
     /// One entry per word that had letters, in reading order.
     pub words: Vec<WordChoice>,
 }
+
+/// How far (nats) a candidate's evidence is allowed to exceed the beam's
+/// own cells' when deciding which candidates are worth scoring.
+const EVIDENCE_SLACK: f64 = 3.0;
 
 /// Candidates kept in [`WordChoice::candidates`].
 const REPORTED: usize = 5;
@@ -253,6 +266,7 @@ fn slots<C: BrailleCode>(
     code: &C,
     lexicon: &Lexicon,
     weights: &RescoreWeights,
+    prefilter: bool,
 ) -> Vec<Slot> {
     let n_t = frames.n_frames();
     let cells = &reading.cells;
@@ -289,13 +303,29 @@ fn slots<C: BrailleCode>(
         let (from, to) = (from.min(n_t), to.min(n_t).max(from.min(n_t)));
         let raw_evidence = span_log_likelihood(frames, from, to, &raw_cells);
         let letters = core.chars().count();
-        let max_edits = weights.edits_for(letters);
+        let raw_log_prob = lexicon.log_prob(core);
+        let max_edits = weights.edits_for(letters, raw_log_prob.is_some());
         let mut cands = Vec::new();
         if max_edits > 0 {
             let core_lower = core.to_lowercase();
+            let raw_score =
+                raw_evidence + weights.lm_weight * raw_log_prob.unwrap_or(weights.oov_log_prob);
             for near in lexicon.near(core, max_edits) {
                 if near.word == core_lower {
                     continue;
+                }
+                let (subs, indels) = edit_ops(&core_lower, &near.word);
+                let log_prob = lexicon.log_prob_of_count(near.count);
+                if prefilter {
+                    // The beam's cells are (nearly) the best explanation of
+                    // the span: a candidate whose evidence would have to beat
+                    // them by more than EVIDENCE_SLACK to win is not scored.
+                    let bound = raw_evidence + EVIDENCE_SLACK + weights.lm_weight * log_prob
+                        - weights.substitution_penalty * subs as f64
+                        - weights.indel_penalty * indels as f64;
+                    if bound <= raw_score {
+                        continue;
+                    }
                 }
                 let text = format!("{lead}{}{trail}", recase(&near.word, core));
                 let Ok(cand_cells) = code.encode(&text) else {
@@ -305,12 +335,11 @@ fn slots<C: BrailleCode>(
                 if evidence == f64::NEG_INFINITY {
                     continue;
                 }
-                let (subs, indels) = edit_ops(&core_lower, &near.word);
                 cands.push(Cand {
                     text,
                     cells: cand_cells,
                     evidence,
-                    log_prob: lexicon.log_prob_of_count(near.count),
+                    log_prob,
                     subs,
                     indels,
                 });
@@ -319,7 +348,7 @@ fn slots<C: BrailleCode>(
         out.push(Slot {
             cells: (start, end),
             frames: (from, to),
-            raw_log_prob: lexicon.log_prob(core),
+            raw_log_prob,
             raw,
             raw_cells,
             raw_evidence,
@@ -397,7 +426,7 @@ pub(crate) fn rescore_pruned<C: BrailleCode>(
     lexicon: &Lexicon,
     weights: &RescoreWeights,
 ) -> Rescored {
-    let slots = slots(frames, reading, code, lexicon, weights);
+    let slots = slots(frames, reading, code, lexicon, weights, true);
     let choices: Vec<Option<&Cand>> = slots.iter().map(|s| s.choose(weights)).collect();
     Rescored {
         text: assemble(code, reading, &slots, &choices),
@@ -514,7 +543,8 @@ pub fn tune<C: BrailleCode>(
     for item in items {
         let frames = crate::decode::checked_pruned(&item.log_probs, beam)?;
         let reading = crate::decode::read_pruned(&frames, code.reader(), beam)?;
-        let s = slots(&frames, &reading, code, lexicon, base);
+        // Every candidate is scored: the grid changes the weights.
+        let s = slots(&frames, &reading, code, lexicon, base, false);
         let (w, e) = word_errors(&reading.text, item.truth);
         raw_words += w;
         raw_edits += e;
@@ -544,7 +574,7 @@ pub fn tune<C: BrailleCode>(
                         edits += b;
                     }
                     let acc = accuracy(words, edits);
-                    if best.as_ref().map_or(true, |(b, _)| acc > *b) {
+                    if best.as_ref().is_none_or(|(b, _)| acc > *b) {
                         best = Some((acc, w));
                     }
                 }

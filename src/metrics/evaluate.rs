@@ -305,7 +305,7 @@ impl Evaluation {
     pub fn save(&self, path: impl AsRef<Path>) -> Result<()> {
         let mut json = self.to_json();
         json.push('\n');
-        crate::report::write_atomic(path.as_ref(), json.as_bytes())
+        crate::fsutil::write_atomic(path.as_ref(), json.as_bytes())
     }
 }
 

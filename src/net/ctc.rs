@@ -62,7 +62,13 @@ pub fn ctc_loss(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> O
         return None;
     }
     let s_len = 2 * target.len() + 1;
-    let label = |s: usize| if s % 2 == 0 { blank } else { target[s / 2] };
+    let label = |s: usize| {
+        if s.is_multiple_of(2) {
+            blank
+        } else {
+            target[s / 2]
+        }
+    };
     // Whether the transition s-2 -> s (skipping a blank) is allowed.
     let skip = |s: usize| s >= 2 && s % 2 == 1 && label(s) != label(s - 2);
     let y = |t: usize, s: usize| log_probs[[t, label(s)]] as f64;

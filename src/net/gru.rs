@@ -34,7 +34,7 @@
 //! time step are a prefix of the batch, so each recurrent GEMM only covers
 //! rows that are still running.
 
-use super::kernels::{self, gemm, gemm_rows, gemv, multiversion};
+use super::kernels::{self, gemm, gemm_rows, gemv, multiversion, Packed};
 use crate::{Error, Result};
 use ndarray::{s, Array1, Array2, Array3, ArrayView2, ArrayView3, Axis};
 use rand::Rng;
@@ -572,6 +572,7 @@ fn run_cell(
     let mut gh = Array2::<f32>::zeros((b, 3 * h));
     let mut scratch = vec![0.0f32; 4 * h];
     let b_h = cell.b_h.as_slice().expect("contiguous");
+    let mut packed_w_h: Option<Packed> = None;
     for step in 0..t_len {
         let t = if reverse { t_len - 1 - step } else { step };
         let na = active[t];
@@ -586,13 +587,12 @@ fn run_cell(
         } else {
             let mut g = gh.slice_mut(s![..na, ..]);
             g.assign(&cell.b_h.broadcast((na, 3 * h)).expect("bias broadcasts"));
+            let w_h = packed_w_h.get_or_insert_with(|| Packed::new(cell.w_h.view()));
             gemm_rows(
                 na,
-                h,
-                3 * h,
                 hprev.as_slice().expect("fresh array"),
                 h,
-                slice(&cell.w_h),
+                w_h,
                 gh.as_slice_mut().expect("fresh array"),
                 3 * h,
             );
@@ -649,8 +649,8 @@ fn backward_cell(
     let mut hprev = Array2::<f32>::zeros((b, h));
     let mut carry = Array2::<f32>::zeros((b, h));
     let mut dh = vec![0.0f32; h];
-    // W_h^T `[3H, H]`, row-major, for the per-step products.
-    let w_h_t = cell.w_h.t().as_standard_layout().into_owned();
+    // W_h^T `[3H, H]`, packed for the per-step products.
+    let w_h_t = Packed::new(cell.w_h.t());
     for step in 0..t_len {
         // Reverse of the forward processing order.
         let t = if reverse { step } else { t_len - 1 - step };
@@ -695,11 +695,9 @@ fn backward_cell(
         // carry (= dh ⊙ z so far) += dgh_t W_h^T
         gemm_rows(
             na,
-            3 * h,
-            h,
             &dgh.as_slice().expect("fresh array")[t * b * 3 * h..],
             3 * h,
-            slice(&w_h_t),
+            &w_h_t,
             carry.as_slice_mut().expect("fresh array"),
             h,
         );

@@ -1,7 +1,8 @@
 //! Numeric kernels shared by the network layers: a fast vectorisable
 //! exponential (and the sigmoid and tanh built on it), a matrix-vector
-//! product for batch-1 recurrences (AVX2 + FMA behind runtime detection,
-//! with a portable fallback), and thin wrappers over `general_mat_mul`.
+//! product for batch-1 recurrences and a few-row product for batched
+//! recurrences (AVX-512 or AVX2 + FMA behind runtime detection, with a
+//! portable fallback), and thin wrappers over `general_mat_mul`.
 //!
 //! The exponential is the Cody-Waite range reduction with the degree-6
 //! polynomial of the Cephes `expf` (S. L. Moshier, Cephes Mathematical
@@ -25,7 +26,12 @@ const ROUND_MAGIC: f32 = 12_582_912.0;
 #[inline(always)]
 pub(crate) fn exp_fast(x: f32) -> f32 {
     let x = x.clamp(-87.3, 88.3);
-    let n = (x * LOG2E + ROUND_MAGIC) - ROUND_MAGIC;
+    let shifted = x * LOG2E + ROUND_MAGIC;
+    let n = shifted - ROUND_MAGIC;
+    // The integer n sits in the low mantissa bits of `shifted`: read it
+    // from the bit pattern (an integer subtraction, which vectorises,
+    // where a saturating float-to-int cast would not).
+    let n_int = (shifted.to_bits() as i32).wrapping_sub(ROUND_MAGIC.to_bits() as i32);
     let f = x - n * LN2_HI - n * LN2_LO;
     let mut p = 1.987_569_2e-4_f32;
     p = p * f + 1.398_199_9e-3;
@@ -34,7 +40,7 @@ pub(crate) fn exp_fast(x: f32) -> f32 {
     p = p * f + 0.166_666_65;
     p = p * f + 0.5;
     let e = p * f * f + f + 1.0;
-    let scale = f32::from_bits((((n as i32) + 127) as u32) << 23);
+    let scale = f32::from_bits(((n_int + 127) as u32) << 23);
     e * scale
 }
 
@@ -64,6 +70,21 @@ pub(crate) fn has_avx2_fma() -> bool {
     }
 }
 
+/// Whether this processor has AVX-512F (checked once, then cached by the
+/// standard library). Where it runs at full width (e.g. AMD Zen 5) it
+/// doubles the work per instruction of the AVX2 kernels.
+#[inline]
+pub(crate) fn has_avx512() -> bool {
+    #[cfg(target_arch = "x86_64")]
+    {
+        std::arch::is_x86_feature_detected!("avx512f")
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    {
+        false
+    }
+}
+
 /// `y = bias + x W`: a matrix-vector product with `W` row-major
 /// `[k, n]` (`w.len() == k * n`), `x` of length `k`, `bias` and `y` of
 /// length `n`. The inner loop runs along a row of `W`, contiguous, so each
@@ -74,9 +95,14 @@ pub(crate) fn gemv(x: &[f32], w: &[f32], bias: &[f32], y: &mut [f32]) {
     assert_eq!(w.len(), x.len() * n, "gemv: weight shape");
     #[cfg(target_arch = "x86_64")]
     {
-        if has_avx2_fma() {
-            // SAFETY: the features were detected just above and the slice
+        if has_avx512() {
+            // SAFETY: the feature was detected just above and the slice
             // lengths were checked.
+            unsafe { gemv_avx512(x, w, bias, y) };
+            return;
+        }
+        if has_avx2_fma() {
+            // SAFETY: as above.
             unsafe { gemv_avx2(x, w, bias, y) };
             return;
         }
@@ -102,6 +128,53 @@ pub(crate) fn gemv_portable(x: &[f32], w: &[f32], bias: &[f32], y: &mut [f32]) {
         }
         y[j..j + width].copy_from_slice(&acc[..width]);
         j += width;
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+unsafe fn gemv_avx512(x: &[f32], w: &[f32], bias: &[f32], y: &mut [f32]) {
+    use std::arch::x86_64::*;
+    let n = y.len();
+    let k = x.len();
+    let wp = w.as_ptr();
+    let mut j = 0;
+    // 128 outputs at a time in eight 16-wide accumulators.
+    while j + 128 <= n {
+        let bp = bias.as_ptr().add(j);
+        let mut acc = [_mm512_setzero_ps(); 8];
+        for (i, a) in acc.iter_mut().enumerate() {
+            *a = _mm512_loadu_ps(bp.add(16 * i));
+        }
+        for kk in 0..k {
+            let xb = _mm512_set1_ps(*x.get_unchecked(kk));
+            let r = wp.add(kk * n + j);
+            for (i, a) in acc.iter_mut().enumerate() {
+                *a = _mm512_fmadd_ps(xb, _mm512_loadu_ps(r.add(16 * i)), *a);
+            }
+        }
+        let yp = y.as_mut_ptr().add(j);
+        for (i, a) in acc.iter().enumerate() {
+            _mm512_storeu_ps(yp.add(16 * i), *a);
+        }
+        j += 128;
+    }
+    while j + 16 <= n {
+        let mut a = _mm512_loadu_ps(bias.as_ptr().add(j));
+        for kk in 0..k {
+            let xb = _mm512_set1_ps(*x.get_unchecked(kk));
+            a = _mm512_fmadd_ps(xb, _mm512_loadu_ps(wp.add(kk * n + j)), a);
+        }
+        _mm512_storeu_ps(y.as_mut_ptr().add(j), a);
+        j += 16;
+    }
+    while j < n {
+        let mut a = *bias.get_unchecked(j);
+        for kk in 0..k {
+            a += *x.get_unchecked(kk) * *w.get_unchecked(kk * n + j);
+        }
+        *y.get_unchecked_mut(j) = a;
+        j += 1;
     }
 }
 
@@ -167,42 +240,91 @@ unsafe fn gemv_avx2(x: &[f32], w: &[f32], bias: &[f32], y: &mut [f32]) {
     }
 }
 
-/// `c += a b` for a few rows: `a` `[m, k]` (row stride `lda`), `b`
-/// `[k, n]` row-major contiguous, `c` `[m, n]` (row stride `ldc`). Made
-/// for the per-time-step recurrent products of a batch (m = running
-/// sequences, up to a few dozen), where a general GEMM spends much of its
-/// time re-packing the weights at every call: here `b` is read in place,
-/// in blocks of 24 columns that stay in L1 while every row block of 4
-/// passes over them (AVX2 + FMA; other processors and `n` not a multiple
-/// of 8 go to `general_mat_mul`).
-#[allow(clippy::too_many_arguments)]
-pub(crate) fn gemm_rows(
-    m: usize,
+/// A weight matrix `[k, n]` prepared for [`gemm_rows`]: the row-major
+/// original and a copy cut into panels of 16 columns (the last one 8
+/// wide when `n` is not a multiple of 16), each panel stored `k` rows of
+/// its width contiguously, so the kernel streams it sequentially.
+pub(crate) struct Packed {
     k: usize,
     n: usize,
-    a: &[f32],
-    lda: usize,
-    b: &[f32],
-    c: &mut [f32],
-    ldc: usize,
-) {
+    rows: Vec<f32>,
+    panels: Vec<f32>,
+}
+
+impl Packed {
+    /// Packs a row-major `[k, n]` matrix.
+    pub(crate) fn new(b: ArrayView2<f32>) -> Packed {
+        let (k, n) = b.dim();
+        let rows: Vec<f32> = b.iter().copied().collect();
+        let mut panels = Vec::with_capacity(k * n);
+        let mut j = 0;
+        while j < n {
+            let w = if n - j >= 16 { 16 } else { n - j };
+            for p in 0..k {
+                panels.extend_from_slice(&rows[p * n + j..p * n + j + w]);
+            }
+            j += w;
+        }
+        Packed { k, n, rows, panels }
+    }
+}
+
+/// `c += a b` for a few rows: `a` `[m, k]` (row stride `lda`), `b` packed
+/// `[k, n]`, `c` `[m, n]` (row stride `ldc`). Made for the per-time-step
+/// recurrent products of a batch (m = running sequences, up to a few
+/// dozen), where a general GEMM would re-pack the weights at every call:
+/// here they are packed once per pass. Blocks of 6 rows x 16 columns
+/// accumulate in registers (12 accumulators, 2 weight vectors and a
+/// broadcast: 15 of the 16 vector registers, nothing spilled) (AVX2 + FMA); other processors and `n` not a
+/// multiple of 8 go to `general_mat_mul`.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn gemm_rows(m: usize, a: &[f32], lda: usize, b: &Packed, c: &mut [f32], ldc: usize) {
+    let (k, n) = (b.k, b.n);
     if m == 0 {
         return;
     }
     assert!(lda >= k && ldc >= n, "gemm_rows: strides");
     assert!(a.len() >= (m - 1) * lda + k, "gemm_rows: a too short");
-    assert!(b.len() >= k * n, "gemm_rows: b too short");
     assert!(c.len() >= (m - 1) * ldc + n, "gemm_rows: c too short");
     #[cfg(target_arch = "x86_64")]
     {
+        if n % 16 == 0 && has_avx512() {
+            // SAFETY: feature detected; bounds checked above and by
+            // construction of `Packed` (all panels 16 wide).
+            unsafe {
+                gemm_rows_avx512(
+                    m,
+                    k,
+                    n,
+                    a.as_ptr(),
+                    lda,
+                    b.panels.as_ptr(),
+                    c.as_mut_ptr(),
+                    ldc,
+                )
+            };
+            return;
+        }
         if n % 8 == 0 && has_avx2_fma() {
-            // SAFETY: features detected; bounds checked above.
-            unsafe { gemm_rows_avx2(m, k, n, a.as_ptr(), lda, b.as_ptr(), c.as_mut_ptr(), ldc) };
+            // SAFETY: features detected; bounds checked above and by
+            // construction of `Packed`.
+            unsafe {
+                gemm_rows_avx2(
+                    m,
+                    k,
+                    n,
+                    a.as_ptr(),
+                    lda,
+                    b.panels.as_ptr(),
+                    c.as_mut_ptr(),
+                    ldc,
+                )
+            };
             return;
         }
     }
     let av = ArrayView2::from_shape((m, k).strides((lda, 1)), a).expect("checked shape");
-    let bv = ArrayView2::from_shape((k, n), &b[..k * n]).expect("checked shape");
+    let bv = ArrayView2::from_shape((k, n), &b.rows[..]).expect("checked shape");
     let mut cv = ArrayViewMut2::from_shape((m, n).strides((ldc, 1)), c).expect("checked shape");
     general_mat_mul(1.0, &av, &bv, 1.0, &mut cv);
 }
@@ -216,34 +338,122 @@ unsafe fn gemm_rows_avx2(
     n: usize,
     a: *const f32,
     lda: usize,
-    b: *const f32,
+    panels: *const f32,
     c: *mut f32,
     ldc: usize,
 ) {
     let mut j = 0;
     while j < n {
-        let nv = ((n - j) / 8).min(3);
+        let nv = ((n - j) / 8).min(2);
+        let w = nv * 8;
+        let bp = panels.add(j * k);
         let mut i = 0;
         while i < m {
-            let mr = (m - i).min(4);
-            let (ap, bp, cp) = (a.add(i * lda), b.add(j), c.add(i * ldc + j));
+            let mr = (m - i).min(6);
+            let (ap, cp) = (a.add(i * lda), c.add(i * ldc + j));
             match (mr, nv) {
-                (4, 3) => micro::<4, 3>(k, ap, lda, bp, n, cp, ldc),
-                (3, 3) => micro::<3, 3>(k, ap, lda, bp, n, cp, ldc),
-                (2, 3) => micro::<2, 3>(k, ap, lda, bp, n, cp, ldc),
-                (1, 3) => micro::<1, 3>(k, ap, lda, bp, n, cp, ldc),
-                (4, 2) => micro::<4, 2>(k, ap, lda, bp, n, cp, ldc),
-                (3, 2) => micro::<3, 2>(k, ap, lda, bp, n, cp, ldc),
-                (2, 2) => micro::<2, 2>(k, ap, lda, bp, n, cp, ldc),
-                (1, 2) => micro::<1, 2>(k, ap, lda, bp, n, cp, ldc),
-                (4, _) => micro::<4, 1>(k, ap, lda, bp, n, cp, ldc),
-                (3, _) => micro::<3, 1>(k, ap, lda, bp, n, cp, ldc),
-                (2, _) => micro::<2, 1>(k, ap, lda, bp, n, cp, ldc),
-                _ => micro::<1, 1>(k, ap, lda, bp, n, cp, ldc),
+                (6, 2) => micro::<6, 2>(k, ap, lda, bp, w, cp, ldc),
+                (5, 2) => micro::<5, 2>(k, ap, lda, bp, w, cp, ldc),
+                (4, 2) => micro::<4, 2>(k, ap, lda, bp, w, cp, ldc),
+                (3, 2) => micro::<3, 2>(k, ap, lda, bp, w, cp, ldc),
+                (2, 2) => micro::<2, 2>(k, ap, lda, bp, w, cp, ldc),
+                (1, 2) => micro::<1, 2>(k, ap, lda, bp, w, cp, ldc),
+                (6, _) => micro::<6, 1>(k, ap, lda, bp, w, cp, ldc),
+                (5, _) => micro::<5, 1>(k, ap, lda, bp, w, cp, ldc),
+                (4, _) => micro::<4, 1>(k, ap, lda, bp, w, cp, ldc),
+                (3, _) => micro::<3, 1>(k, ap, lda, bp, w, cp, ldc),
+                (2, _) => micro::<2, 1>(k, ap, lda, bp, w, cp, ldc),
+                _ => micro::<1, 1>(k, ap, lda, bp, w, cp, ldc),
             }
             i += mr;
         }
-        j += nv * 8;
+        j += w;
+    }
+}
+
+/// The AVX-512 version: blocks of 8 rows x 32 columns (two 16-wide
+/// panels), 16 accumulators of the 32 vector registers.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+#[allow(clippy::too_many_arguments)]
+unsafe fn gemm_rows_avx512(
+    m: usize,
+    k: usize,
+    n: usize,
+    a: *const f32,
+    lda: usize,
+    panels: *const f32,
+    c: *mut f32,
+    ldc: usize,
+) {
+    let mut j = 0;
+    while j < n {
+        let np = if n - j >= 32 { 2 } else { 1 };
+        let bp = panels.add(j * k);
+        let mut i = 0;
+        while i < m {
+            let mr = (m - i).min(8);
+            let (ap, cp) = (a.add(i * lda), c.add(i * ldc + j));
+            match (mr, np) {
+                (8, 2) => micro512::<8, 2>(k, ap, lda, bp, cp, ldc),
+                (7, 2) => micro512::<7, 2>(k, ap, lda, bp, cp, ldc),
+                (6, 2) => micro512::<6, 2>(k, ap, lda, bp, cp, ldc),
+                (5, 2) => micro512::<5, 2>(k, ap, lda, bp, cp, ldc),
+                (4, 2) => micro512::<4, 2>(k, ap, lda, bp, cp, ldc),
+                (3, 2) => micro512::<3, 2>(k, ap, lda, bp, cp, ldc),
+                (2, 2) => micro512::<2, 2>(k, ap, lda, bp, cp, ldc),
+                (1, 2) => micro512::<1, 2>(k, ap, lda, bp, cp, ldc),
+                (8, _) => micro512::<8, 1>(k, ap, lda, bp, cp, ldc),
+                (7, _) => micro512::<7, 1>(k, ap, lda, bp, cp, ldc),
+                (6, _) => micro512::<6, 1>(k, ap, lda, bp, cp, ldc),
+                (5, _) => micro512::<5, 1>(k, ap, lda, bp, cp, ldc),
+                (4, _) => micro512::<4, 1>(k, ap, lda, bp, cp, ldc),
+                (3, _) => micro512::<3, 1>(k, ap, lda, bp, cp, ldc),
+                (2, _) => micro512::<2, 1>(k, ap, lda, bp, cp, ldc),
+                _ => micro512::<1, 1>(k, ap, lda, bp, cp, ldc),
+            }
+            i += mr;
+        }
+        j += 16 * np;
+    }
+}
+
+/// `MR` rows x `16 NP` columns (`NP` consecutive 16-wide panels, each `k`
+/// rows of 16 contiguous values) of `c += a b`.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+#[inline]
+unsafe fn micro512<const MR: usize, const NP: usize>(
+    k: usize,
+    a: *const f32,
+    lda: usize,
+    b: *const f32,
+    c: *mut f32,
+    ldc: usize,
+) {
+    use std::arch::x86_64::*;
+    let mut acc = [[_mm512_setzero_ps(); NP]; MR];
+    for (i, row) in acc.iter_mut().enumerate() {
+        for (v, x) in row.iter_mut().enumerate() {
+            *x = _mm512_loadu_ps(c.add(i * ldc + v * 16));
+        }
+    }
+    for p in 0..k {
+        let mut bv = [_mm512_setzero_ps(); NP];
+        for (v, x) in bv.iter_mut().enumerate() {
+            *x = _mm512_loadu_ps(b.add(v * 16 * k + p * 16));
+        }
+        for (i, row) in acc.iter_mut().enumerate() {
+            let av = _mm512_set1_ps(*a.add(i * lda + p));
+            for (x, bvv) in row.iter_mut().zip(bv.iter()) {
+                *x = _mm512_fmadd_ps(av, *bvv, *x);
+            }
+        }
+    }
+    for (i, row) in acc.iter().enumerate() {
+        for (v, x) in row.iter().enumerate() {
+            _mm512_storeu_ps(c.add(i * ldc + v * 16), *x);
+        }
     }
 }
 
@@ -372,7 +582,28 @@ mod tests {
             let b: Vec<f32> = (0..k * n).map(|_| rng.gen_range(-1.0..1.0)).collect();
             let c0: Vec<f32> = (0..m * ldc).map(|_| rng.gen_range(-1.0..1.0)).collect();
             let mut c = c0.clone();
-            gemm_rows(m, k, n, &a, lda, &b, &mut c, ldc);
+            let packed = Packed::new(ArrayView2::from_shape((k, n), &b[..]).unwrap());
+            gemm_rows(m, &a, lda, &packed, &mut c, ldc);
+            // The AVX2 kernel too, where the dispatcher would pick AVX-512.
+            #[cfg(target_arch = "x86_64")]
+            if n % 8 == 0 && has_avx2_fma() {
+                let mut c2 = c0.clone();
+                unsafe {
+                    gemm_rows_avx2(
+                        m,
+                        k,
+                        n,
+                        a.as_ptr(),
+                        lda,
+                        packed.panels.as_ptr(),
+                        c2.as_mut_ptr(),
+                        ldc,
+                    )
+                };
+                for (x, y) in c.iter().zip(&c2) {
+                    assert_relative_eq!(*x, *y, epsilon = 1e-5 * k as f32);
+                }
+            }
             for i in 0..m {
                 for j in 0..n {
                     let want = c0[i * ldc + j] as f64
@@ -408,13 +639,75 @@ mod tests {
                 .collect();
             let mut y1 = vec![0.0; n];
             let mut y2 = vec![0.0; n];
+            let mut y3 = naive.iter().map(|&v| v as f32).collect::<Vec<_>>();
             gemv(&x, &w, &b, &mut y1);
             gemv_portable(&x, &w, &b, &mut y2);
+            // The AVX2 kernel too, where the dispatcher would pick AVX-512.
+            #[cfg(target_arch = "x86_64")]
+            if has_avx2_fma() {
+                unsafe { gemv_avx2(&x, &w, &b, &mut y3) };
+            }
             for j in 0..n {
+                assert_relative_eq!(y3[j] as f64, naive[j], epsilon = 1e-5 * k as f64);
                 // k terms of size <= 1 in f32: rounding error below k * 2^-23.
                 assert_relative_eq!(y1[j] as f64, naive[j], epsilon = 1e-5 * k as f64);
                 assert_relative_eq!(y2[j] as f64, naive[j], epsilon = 1e-5 * k as f64);
             }
+        }
+    }
+}
+
+#[cfg(test)]
+mod timing {
+    use super::*;
+    use ndarray::Array2;
+    use std::time::Instant;
+
+    /// Interleaved A/B timing of the per-step product against
+    /// `general_mat_mul` (run with `--release -- --ignored --nocapture`).
+    #[test]
+    #[ignore]
+    fn gemm_rows_vs_general_mat_mul() {
+        for &(m, k, n) in &[
+            (16usize, 128usize, 384usize),
+            (32, 128, 384),
+            (16, 384, 128),
+            (32, 384, 128),
+        ] {
+            let a = Array2::<f32>::from_shape_fn((m, k), |(i, j)| ((i * 7 + j) % 13) as f32 * 0.01);
+            let b = Array2::<f32>::from_shape_fn((k, n), |(i, j)| ((i * 3 + j) % 11) as f32 * 0.01);
+            let mut c1 = Array2::<f32>::zeros((m, n));
+            let mut c2 = Array2::<f32>::zeros((m, n));
+            let reps = 2000;
+            let packed = Packed::new(b.view());
+            let (mut t1, mut t2) = (Vec::new(), Vec::new());
+            for _ in 0..7 {
+                let s = Instant::now();
+                for _ in 0..reps {
+                    gemm_rows(
+                        m,
+                        a.as_slice().unwrap(),
+                        k,
+                        &packed,
+                        c1.as_slice_mut().unwrap(),
+                        n,
+                    );
+                }
+                t1.push(s.elapsed().as_secs_f64());
+                let s = Instant::now();
+                for _ in 0..reps {
+                    general_mat_mul(1.0, &a, &b, 1.0, &mut c2);
+                }
+                t2.push(s.elapsed().as_secs_f64());
+            }
+            t1.sort_by(f64::total_cmp);
+            t2.sort_by(f64::total_cmp);
+            let flop = 2.0 * (m * k * n * reps) as f64;
+            println!(
+                "{m}x{k}x{n}: gemm_rows {:.1} GFLOP/s, general_mat_mul {:.1} GFLOP/s",
+                flop / t1[3] / 1e9,
+                flop / t2[3] / 1e9
+            );
         }
     }
 }

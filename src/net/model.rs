@@ -18,6 +18,7 @@
 use super::gru::GruConfig;
 use super::head::N_CLASSES;
 use super::network::Network;
+use crate::fsutil::write_atomic;
 use crate::prep::Prep;
 use crate::{Error, Result};
 use serde::{Deserialize, Serialize};
@@ -234,33 +235,6 @@ impl Model {
     pub fn save(&self, path: &Path) -> Result<()> {
         write_atomic(path, self.to_json().as_bytes())
     }
-}
-
-/// Writes `bytes` to `path` through a temporary file in the same folder,
-/// then renames it over `path`.
-pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    use std::io::Write;
-    let dir = match path.parent() {
-        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
-        _ => std::path::PathBuf::from("."),
-    };
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "model".into());
-    let tmp = dir.join(format!(".{name}.tmp{}", std::process::id()));
-    let result = (|| {
-        let mut f = std::fs::File::create(&tmp).map_err(|e| Error::io("cannot create", &tmp, e))?;
-        f.write_all(bytes)
-            .map_err(|e| Error::io("cannot write", &tmp, e))?;
-        f.sync_all()
-            .map_err(|e| Error::io("cannot write", &tmp, e))?;
-        std::fs::rename(&tmp, path).map_err(|e| Error::io("cannot write", path, e))
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result
 }
 
 #[cfg(test)]

@@ -165,7 +165,7 @@ impl Prep {
             let mut i = 0usize;
             for r in recordings {
                 for row in r.frames.outer_iter() {
-                    if i % stride == 0 && row[k].is_finite() {
+                    if i.is_multiple_of(stride) && row[k].is_finite() {
                         v.push(row[k]);
                     }
                     i += 1;
@@ -315,7 +315,7 @@ impl Resampler<'_> {
             } else {
                 1.0
             };
-            if self.emitted % p.decimate as u64 == 0 {
+            if self.emitted.is_multiple_of(p.decimate as u64) {
                 for k in 0..p.taxels {
                     let v = v0[k] + w * (frame[k] - v0[k]);
                     out.push((v - p.baseline[k]) / p.scale[k]);

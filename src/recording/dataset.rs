@@ -22,7 +22,6 @@ use super::Recording;
 use crate::error::{Error, Location, Result};
 use serde::{Deserialize, Serialize};
 use std::collections::{BTreeMap, HashSet};
-use std::io::Write;
 use std::path::{Component, Path, PathBuf};
 
 /// Format tag of dataset index files.
@@ -121,20 +120,7 @@ impl DatasetIndex {
                 reason: format!("the index would not read back: {e}"),
             })?;
         let json = serde_json::to_string_pretty(self).unwrap_or_default() + "\n";
-        let tmp = dir.join(format!(".{DATASET_INDEX}.{}.tmp", std::process::id()));
-        let result = (|| {
-            let mut f = std::fs::File::create(&tmp)?;
-            f.write_all(json.as_bytes())?;
-            f.sync_all()
-        })();
-        if let Err(e) = result {
-            let _ = std::fs::remove_file(&tmp);
-            return Err(Error::io("cannot write", &tmp, e));
-        }
-        std::fs::rename(&tmp, &path).map_err(|e| {
-            let _ = std::fs::remove_file(&tmp);
-            Error::io("cannot write", &path, e)
-        })
+        crate::fsutil::write_atomic(&path, json.as_bytes())
     }
 
     /// Check tag, version and entries; `origin` names the index in errors.

@@ -29,14 +29,13 @@ mod html;
 mod palette;
 mod plots;
 mod view;
-mod write;
 
+use crate::fsutil::write_atomic;
 pub use html::html_report;
 pub use view::{
     place_evenly, place_truth, recording_view_svg, view_axis, PlacedCell, RecordingView, ViewAxis,
     DEFAULT_CELL_PITCH_MM,
 };
-pub(crate) use write::write_atomic;
 
 use crate::error::Result;
 use crate::metrics::Evaluation;

@@ -276,34 +276,7 @@ pub fn train(
     let started = Instant::now();
     let recs: Vec<&crate::recording::Recording> = train.iter().map(|e| &e.recording).collect();
     let prep = Prep::fit(&config.prep_config(), &recs)?;
-    let prepare = |e: &Example| -> Result<Prepared> {
-        let reference = table.encode(&e.text).map_err(|err| {
-            Error::input(
-                crate::Location::file(&e.name).field("text"),
-                format!("the ground truth cannot be written in braille: {err}"),
-            )
-        })?;
-        let cells: Vec<usize> = reference
-            .iter()
-            .map(|c| {
-                if c.is_six_dot() {
-                    Ok(c.mask() as usize)
-                } else {
-                    Err(Error::input(
-                        crate::Location::file(&e.name).field("text"),
-                        "the text needs 8-dot cells; training reads six-dot braille only",
-                    ))
-                }
-            })
-            .collect::<Result<_>>()?;
-        let x = prep.apply(&e.recording, &e.name)?;
-        Ok(Prepared {
-            x,
-            cells,
-            reference,
-            text: e.text.clone(),
-        })
-    };
+    let prep_one = |e: &Example| prepare(&prep, table, e);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(config.threads)
         .build()
@@ -314,8 +287,11 @@ pub fn train(
             )
         })?;
     let (train_p, val_p) = pool.install(|| -> Result<(Vec<Prepared>, Vec<Prepared>)> {
-        let t = train.par_iter().map(&prepare).collect::<Result<Vec<_>>>()?;
-        let v = val.par_iter().map(&prepare).collect::<Result<Vec<_>>>()?;
+        let t = train
+            .par_iter()
+            .map(&prep_one)
+            .collect::<Result<Vec<_>>>()?;
+        let v = val.par_iter().map(&prep_one).collect::<Result<Vec<_>>>()?;
         Ok((t, v))
     })?;
     let fp = fingerprint(&train_p, &val_p);
@@ -455,7 +431,7 @@ pub fn train(
         let train_loss = nll / cells.max(1) as f64;
         let v = pool.install(|| validate(&net, &val_p, table))?;
         epoch += 1;
-        let is_best = best.as_ref().map_or(true, |(_, b, _)| v.better_than(b));
+        let is_best = best.as_ref().is_none_or(|(_, b, _)| v.better_than(b));
         let secs = seconds_before + started.elapsed().as_secs_f64();
         if is_best {
             best = Some((epoch, v, train_loss));
@@ -486,7 +462,7 @@ pub fn train(
             seconds: secs,
         };
         let text = serde_json::to_string(&ck).expect("a checkpoint always serialises");
-        crate::net::write_atomic(&ckpt_path, text.as_bytes())?;
+        crate::fsutil::write_atomic(&ckpt_path, text.as_bytes())?;
         let flow = on_event(Event::Epoch {
             epoch,
             train_loss,
@@ -509,6 +485,57 @@ pub fn train(
         model.save(out)?;
     }
     Ok(Outcome { model, history })
+}
+
+/// Preprocesses one example and writes its text as cells.
+fn prepare(prep: &Prep, table: &CodeTable, e: &Example) -> Result<Prepared> {
+    let reference = table.encode(&e.text).map_err(|err| {
+        Error::input(
+            crate::Location::file(&e.name).field("text"),
+            format!("the ground truth cannot be written in braille: {err}"),
+        )
+    })?;
+    let cells: Vec<usize> = reference
+        .iter()
+        .map(|c| {
+            if c.is_six_dot() {
+                Ok(c.mask() as usize)
+            } else {
+                Err(Error::input(
+                    crate::Location::file(&e.name).field("text"),
+                    "the text needs 8-dot cells; training reads six-dot braille only",
+                ))
+            }
+        })
+        .collect::<Result<_>>()?;
+    let x = prep.apply(&e.recording, &e.name)?;
+    Ok(Prepared {
+        x,
+        cells,
+        reference,
+        text: e.text.clone(),
+    })
+}
+
+/// Greedy-decoding figures (CTC loss, dot and character accuracy) of a
+/// trained model on labelled recordings, e.g. a held-out test split.
+pub fn evaluate(
+    model: &Model,
+    examples: &[Example],
+    table: &CodeTable,
+    threads: usize,
+) -> Result<Validation> {
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(threads.max(1))
+        .build()
+        .map_err(|e| Error::config("threads", format!("cannot start {threads} threads: {e}")))?;
+    pool.install(|| {
+        let prepared = examples
+            .par_iter()
+            .map(|e| prepare(&model.prep, table, e))
+            .collect::<Result<Vec<_>>>()?;
+        validate(&model.network, &prepared, table)
+    })
 }
 
 /// Validation: loss and greedy-decoding accuracies over `val`.
@@ -664,6 +691,11 @@ mod tests {
         let loaded = Model::load(&a).unwrap();
         assert_eq!(loaded.training.epochs, 4);
         assert_eq!(loaded.lang, "en");
+        let again = evaluate(&loaded, &val, &table, 2).unwrap();
+        assert_eq!(
+            again.char_accuracy,
+            loaded.training.validation_char_accuracy
+        );
 
         // Stopped after two epochs, then resumed: the same final checkpoint.
         let stop2 = |e: Event| match e {

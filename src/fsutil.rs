@@ -1,4 +1,4 @@
-//! Atomic file output: write to a temporary file in the target's folder,
+//! File output shared by every stage. Atomic writes: write to a temporary file in the target's folder,
 //! then rename it over the target, so a reader never sees half a file.
 
 use crate::error::{Error, Result};

@@ -1,0 +1,249 @@
+//! `tactread train`: fit a model on a dataset folder (as `tactread
+//! simulate dataset` writes), keep the best epoch by validation accuracy,
+//! and report greedy-decoding figures on the held-out test split.
+
+use clap::{Args as ClapArgs, ValueEnum};
+use indicatif::{ProgressBar, ProgressStyle};
+use rayon::prelude::*;
+use std::ops::ControlFlow;
+use std::path::PathBuf;
+use std::time::Instant;
+use tactread::braille::CodeTable;
+use tactread::recording::{Dataset, Split};
+use tactread::train::{self, Event, Example, TrainConfig};
+use tactread::{Error, Result};
+
+/// Recurrence direction.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+enum Direction {
+    /// Forward in time only: can decode while streaming.
+    Uni,
+    /// Forward and backward: offline only, usually more accurate.
+    Bi,
+}
+
+/// Options of `tactread train`.
+#[derive(Debug, ClapArgs)]
+#[command(
+    after_help = "Example:\n  tactread simulate dataset --lines 2000 --preset typical --out sim-data\n  tactread train --data sim-data --out reader.model.json --max-minutes 15\n\nA checkpoint is written to MODEL.ckpt after every epoch; `--resume` continues from it."
+)]
+pub struct Args {
+    /// Dataset folder with an index.json (train, validation and test splits).
+    #[arg(long, value_name = "DIR")]
+    data: PathBuf,
+    /// Where to write the model (JSON).
+    #[arg(long, value_name = "MODEL")]
+    out: PathBuf,
+    /// Hidden units per GRU direction.
+    #[arg(long, default_value_t = 128)]
+    hidden: usize,
+    /// Stacked GRU layers.
+    #[arg(long, default_value_t = 2)]
+    layers: usize,
+    /// Recurrence direction: `uni` streams, `bi` is offline only.
+    #[arg(long, value_enum, default_value_t = Direction::Uni)]
+    direction: Direction,
+    /// Maximum number of epochs.
+    #[arg(long, default_value_t = 40)]
+    epochs: usize,
+    /// Peak learning rate (Adam; linear warm-up then cosine decay).
+    #[arg(long, default_value_t = 3e-3)]
+    lr: f32,
+    /// Recordings per mini-batch.
+    #[arg(long, default_value_t = 32)]
+    batch: usize,
+    /// Random seed (initial weights and batch order).
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Threads; the result is reproducible for a given seed and thread count.
+    #[arg(long, default_value_t = 2)]
+    threads: usize,
+    /// Resampling step along the line in mm (recordings with a position channel).
+    #[arg(long, default_value_t = 0.5)]
+    step_mm: f64,
+    /// Resampling rate in Hz (recordings without a position channel).
+    #[arg(long, default_value_t = 40.0)]
+    rate_hz: f64,
+    /// Keep every k-th resampled frame.
+    #[arg(long, default_value_t = 1)]
+    decimate: usize,
+    /// Stop after this many epochs without a better validation score.
+    #[arg(long, default_value_t = 6)]
+    patience: usize,
+    /// Start no new epoch after this many minutes.
+    #[arg(long)]
+    max_minutes: Option<f64>,
+    /// Clip the global gradient norm to this value.
+    #[arg(long, default_value_t = 5.0)]
+    clip: f32,
+    /// Continue the interrupted run whose checkpoint is MODEL.ckpt.
+    #[arg(long)]
+    resume: bool,
+    /// Overwrite an existing model file.
+    #[arg(long)]
+    force: bool,
+}
+
+fn load_split(ds: &Dataset, split: Split) -> Result<Vec<Example>> {
+    let entries: Vec<_> = ds.split(split).collect();
+    entries
+        .par_iter()
+        .map(|e| {
+            Ok(Example {
+                name: ds.manifest_path(e).display().to_string(),
+                recording: ds.load(e)?,
+                text: e.text.clone(),
+            })
+        })
+        .collect()
+}
+
+/// Run `tactread train`.
+pub fn run(args: Args) -> Result<()> {
+    let config = TrainConfig {
+        hidden: args.hidden,
+        layers: args.layers,
+        bidirectional: args.direction == Direction::Bi,
+        epochs: args.epochs,
+        lr: args.lr,
+        batch: args.batch,
+        seed: args.seed,
+        threads: args.threads,
+        clip: args.clip,
+        patience: args.patience,
+        max_minutes: args.max_minutes,
+        step_mm: args.step_mm,
+        rate_hz: args.rate_hz,
+        decimate: args.decimate,
+    };
+    config.check()?;
+    if args.out.exists() && !args.force && !args.resume {
+        return Err(Error::Output {
+            path: args.out.clone(),
+            reason: "the file exists: pass --force to replace it, or --resume to continue its run"
+                .into(),
+        });
+    }
+    let ds = Dataset::open(&args.data)?;
+    let mut langs: Vec<&str> = ds.entries().iter().map(|e| e.lang.as_str()).collect();
+    langs.sort_unstable();
+    langs.dedup();
+    let lang = match langs.as_slice() {
+        [one] => one.to_string(),
+        _ => {
+            return Err(Error::Mismatch {
+                what: format!("languages of {}", args.data.display()),
+                expected: "one language pack".into(),
+                got: langs.join(", "),
+                hint: "train one model per language: make a dataset per language".into(),
+            })
+        }
+    };
+    let table = CodeTable::builtin(&lang)?;
+    let t_load = Instant::now();
+    let (train_set, val, test) = rayon::ThreadPoolBuilder::new()
+        .num_threads(args.threads)
+        .build()
+        .map_err(|e| Error::config("threads", e.to_string()))?
+        .install(|| -> Result<_> {
+            Ok((
+                load_split(&ds, Split::Train)?,
+                load_split(&ds, Split::Validation)?,
+                load_split(&ds, Split::Test)?,
+            ))
+        })?;
+    eprintln!(
+        "{}: {} train, {} validation, {} test recordings ({lang}), loaded in {:.1} s",
+        args.data.display(),
+        train_set.len(),
+        val.len(),
+        test.len(),
+        t_load.elapsed().as_secs_f64()
+    );
+
+    let bar = ProgressBar::new(0);
+    bar.set_style(
+        ProgressStyle::with_template(
+            "{bar:28} {pos}/{len} batches {msg} [{elapsed_precise} < {eta_precise}]",
+        )
+        .unwrap_or_else(|_| ProgressStyle::default_bar()),
+    );
+    let mut last_val = String::from("val -");
+    let mut loss_avg: Option<f64> = None;
+    let t0 = Instant::now();
+    let outcome = train::train(
+        &config,
+        &train_set,
+        &val,
+        &table,
+        &args.data.display().to_string(),
+        &args.out,
+        args.resume,
+        |e| {
+            match e {
+                Event::Start { batches, done } => {
+                    bar.set_length(batches);
+                    bar.set_position(done);
+                }
+                Event::Batch { loss, frames_per_s } => {
+                    let a = loss_avg.map_or(loss, |m| 0.95 * m + 0.05 * loss);
+                    loss_avg = Some(a);
+                    bar.inc(1);
+                    bar.set_message(format!(
+                        "loss {a:.3} | {last_val} | {:.0}k frames/s",
+                        frames_per_s / 1e3
+                    ));
+                }
+                Event::Epoch {
+                    epoch,
+                    train_loss,
+                    validation,
+                    best,
+                } => {
+                    last_val = format!(
+                        "val dots {:.2}% chars {:.2}%",
+                        validation.dot_accuracy * 100.0,
+                        validation.char_accuracy * 100.0
+                    );
+                    let line = format!(
+                        "epoch {epoch:>3}  train loss {train_loss:.4}  val loss {:.4}  dots {:.2}%  \
+                         chars {:.2}%  {:.0} s{}",
+                        validation.loss,
+                        validation.dot_accuracy * 100.0,
+                        validation.char_accuracy * 100.0,
+                        t0.elapsed().as_secs_f64(),
+                        if best { "  (best, saved)" } else { "" }
+                    );
+                    // A hidden bar (output not a terminal) prints nothing.
+                    if bar.is_hidden() {
+                        eprintln!("{line}");
+                    } else {
+                        bar.println(line);
+                    }
+                }
+            }
+            ControlFlow::Continue(())
+        },
+    )?;
+    bar.finish_and_clear();
+    let s = &outcome.model.training;
+    eprintln!(
+        "best epoch {} of {}: validation dots {:.2}%, chars {:.2}%; trained {:.0} s; model {}",
+        s.best_epoch,
+        s.epochs,
+        s.validation_dot_accuracy * 100.0,
+        s.validation_char_accuracy * 100.0,
+        s.seconds,
+        args.out.display()
+    );
+    if !test.is_empty() {
+        let v = train::evaluate(&outcome.model, &test, &table, args.threads)?;
+        println!(
+            "test ({} recordings, greedy decoding): dot accuracy {:.2}%, character accuracy {:.2}%",
+            test.len(),
+            v.dot_accuracy * 100.0,
+            v.char_accuracy * 100.0
+        );
+    }
+    Ok(())
+}

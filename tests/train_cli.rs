@@ -1,0 +1,107 @@
+//! Tests of `tactread train` through the built binary: a tiny simulated
+//! dataset, one short training run, the model file it writes, and the
+//! errors a user meets (existing output, bad options, missing data).
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn tactread(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_tactread"))
+        .args(args)
+        .output()
+        .expect("the binary runs")
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("tactread-train-cli-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+fn s(p: &Path) -> &str {
+    p.to_str().unwrap()
+}
+
+#[test]
+fn trains_a_small_model_and_reports_test_figures() {
+    let dir = scratch("ok");
+    let data = dir.join("data");
+    let out = tactread(&[
+        "simulate",
+        "dataset",
+        "--lines",
+        "20",
+        "--preset",
+        "clean",
+        "--lang",
+        "en",
+        "--seed",
+        "3",
+        "--jobs",
+        "1",
+        "--out",
+        s(&data),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let model = dir.join("m.json");
+    let args = [
+        "train",
+        "--data",
+        s(&data),
+        "--out",
+        s(&model),
+        "--epochs",
+        "2",
+        "--hidden",
+        "8",
+        "--layers",
+        "1",
+        "--batch",
+        "8",
+        "--threads",
+        "2",
+        "--step-mm",
+        "1.0",
+    ];
+    let out = tactread(&args);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{err}");
+    assert!(err.contains("epoch   1"), "{err}");
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        stdout.contains("test (") && stdout.contains("character accuracy"),
+        "{stdout}"
+    );
+    let text = std::fs::read_to_string(&model).unwrap();
+    let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+    assert_eq!(v["format"], "tactread-model");
+    assert_eq!(v["version"], 1);
+    assert_eq!(v["sensor"]["taxels"], 24);
+    assert_eq!(v["lang"], "en");
+    assert_eq!(v["architecture"]["gru"]["hidden"], 8);
+    assert!(dir.join("m.json.ckpt").exists());
+
+    // The same command again refuses to overwrite the model (exit 4).
+    let again = tactread(&args);
+    assert_eq!(again.status.code(), Some(4));
+    assert!(String::from_utf8_lossy(&again.stderr).contains("--force"));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn bad_options_and_missing_data_are_clear_errors() {
+    let dir = scratch("bad");
+    let m = dir.join("m.json");
+    let out = tactread(&["train", "--data", s(&dir), "--out", s(&m), "--batch", "0"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("batch"));
+    let out = tactread(&["train", "--data", s(&dir.join("nowhere")), "--out", s(&m)]);
+    assert_ne!(out.status.code(), Some(0));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("nowhere"));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
