@@ -22,8 +22,8 @@ fuzz_target!(|data: &[u8]| {
         let _ = lex.count(w);
         let _ = lex.log_prob(w);
     }
-    // Near-word search costs milliseconds a query under the sanitizer (the
-    // fst crate builds its automaton eagerly): two short queries.
+    // Near-word search (the lexicon's own lazy Levenshtein automaton over
+    // the fst): a listed word and a short query.
     if let Some((w, _)) = words.iter().find(|(w, _)| w.len() <= 32) {
         let _ = lex.near(w, 1);
     }
