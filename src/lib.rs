@@ -41,6 +41,7 @@ mod error;
 pub mod lexicon;
 pub mod metrics;
 pub mod net;
+pub mod pipeline;
 pub mod prep;
 pub mod recording;
 pub mod report;

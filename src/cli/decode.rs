@@ -47,7 +47,7 @@ enum Format {
 }
 
 /// Printed on standard error with text output.
-const CAUTION: &str =
+pub(crate) const CAUTION: &str =
     "caution: machine-read braille can be wrong; verify it wherever a misreading \
                        could do harm (medicine labels, dosages, signs)";
 
@@ -56,22 +56,7 @@ pub fn run(args: Args) -> Result<()> {
     let model = Model::load(&args.model)?;
     let lang = args.lang.clone().unwrap_or_else(|| model.lang.clone());
     let table = CodeTable::builtin(&lang)?;
-    let lexicon = match args.lexicon.as_deref() {
-        Some("none") => None,
-        Some(path) => {
-            let lex = Lexicon::load(Path::new(path))?;
-            if !lex.lang().is_empty() && lex.lang() != lang {
-                return Err(Error::Mismatch {
-                    what: format!("language of lexicon {path}"),
-                    expected: lang.clone(),
-                    got: lex.lang().to_string(),
-                    hint: "pass a lexicon built for this language, or --lang to match it".into(),
-                });
-            }
-            Some(lex)
-        }
-        None => Some(Lexicon::builtin(&lang)?),
-    };
+    let lexicon = load_lexicon(args.lexicon.as_deref(), &lang)?;
     let beam = BeamParams {
         beam_width: args.beam,
         n_best: args.n_best.min(args.beam.max(1)),
@@ -92,15 +77,8 @@ pub fn run(args: Args) -> Result<()> {
     for path in &args.recordings {
         let name = path.display().to_string();
         let rec = Recording::load(path)?;
-        model.check_taxels(rec.frames.ncols(), &name)?;
-        let x = model.prep.apply(&rec, &name)?;
-        let lp = model
-            .network
-            .forward(&[x.view()])?
-            .into_iter()
-            .next()
-            .ok_or_else(|| Error::config("model", "the network returned no output"))?;
-        results.push((name, decoder.decode(lp.view())?));
+        let decoded = tactread::pipeline::read_recording(&model, &decoder, &rec, &name)?;
+        results.push((name, decoded));
     }
 
     let stdout = std::io::stdout();
@@ -136,6 +114,28 @@ pub fn run(args: Args) -> Result<()> {
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
         Err(e) => Err(Error::io("cannot write", "<stdout>", e)),
     }
+}
+
+/// The lexicon a `--lexicon` option names: a file, `none`, or (when not
+/// given) the builtin lexicon of `lang`. A file built for another language
+/// is refused.
+pub(crate) fn load_lexicon(arg: Option<&str>, lang: &str) -> Result<Option<Lexicon>> {
+    Ok(match arg {
+        Some("none") => None,
+        Some(path) => {
+            let lex = Lexicon::load(Path::new(path))?;
+            if !lex.lang().is_empty() && lex.lang() != lang {
+                return Err(Error::Mismatch {
+                    what: format!("language of lexicon {path}"),
+                    expected: lang.to_string(),
+                    got: lex.lang().to_string(),
+                    hint: "pass a lexicon built for this language, or --lang to match it".into(),
+                });
+            }
+            Some(lex)
+        }
+        None => Some(Lexicon::builtin(lang)?),
+    })
 }
 
 fn round(x: f64) -> f64 {
