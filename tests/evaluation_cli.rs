@@ -276,6 +276,32 @@ fn evaluate_scores_a_dataset_and_writes_metrics_and_report() {
     forced.push("--force");
     assert!(tactread(&forced).status.success());
 
+    // `show --model` draws the decoded cells of one test recording.
+    let test_manifest = index["recordings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["split"] == "test")
+        .unwrap()["manifest"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let svg = dir.join("view.svg");
+    let out = tactread(&[
+        "show",
+        s(&data.join(&test_manifest)),
+        "--out",
+        s(&svg),
+        "--model",
+        s(&model),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(std::fs::read_to_string(&svg).unwrap().contains("<svg"));
+
     // A DATA path that does not exist is named in the error.
     let nowhere = dir.join("nowhere");
     let out = tactread(&["evaluate", s(&model), s(&nowhere)]);
