@@ -283,7 +283,15 @@ fn read_one(
             "no ground-truth text: evaluation needs the text each recording holds",
         ));
     }
-    let ref_cells = table.encode(&text)?;
+    let ref_cells = table.encode(&text).map_err(|e| {
+        Error::input(
+            tactread::Location::file(&item.path).field("text"),
+            format!(
+                "the ground truth cannot be written with the reading language's code table ({e}): \
+                 evaluate recordings of the model's language, or pass --lang"
+            ),
+        )
+    })?;
     let decoded = read_recording(model, decoder, &rec, &name)?;
     let r = &decoded.reading;
     let without = Hypothesis {
