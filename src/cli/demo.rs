@@ -91,19 +91,11 @@ pub fn run(args: Args) -> Result<()> {
     for e in &entries {
         let name = ds.manifest_path(e).display().to_string();
         let rec = ds.load(e)?;
-        model.check_taxels(rec.frames.ncols(), &name)?;
         let table = CodeTable::builtin(&e.lang)?;
         let lexicon = Lexicon::builtin(&e.lang)?;
         let decoder = Decoder::new(&table, BeamParams::default())?
             .with_lexicon(&lexicon, RescoreWeights::default())?;
-        let x = model.prep.apply(&rec, &name)?;
-        let lp = model
-            .network
-            .forward(&[x.view()])?
-            .into_iter()
-            .next()
-            .ok_or_else(|| Error::config("model", "the network returned no output"))?;
-        let d = decoder.decode(lp.view())?;
+        let d = tactread::pipeline::read_recording(&model, &decoder, &rec, &name)?;
         let (truth_cells, _) = table.encode_lossy(&e.text);
         let beam_cells: Vec<_> = d.reading.cells.iter().map(|c| c.cell).collect();
         let (lex_cells, _) = table.encode_lossy(&d.text);

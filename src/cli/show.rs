@@ -4,7 +4,7 @@
 //!
 //! The ground truth is the manifest's `text`, written in cells with the
 //! language pack's code table. Drawing the decoded cells as well needs a
-//! trained model file; that option comes with the model format.
+//! trained model file (`--model`).
 
 use clap::Args as ClapArgs;
 use std::path::{Path, PathBuf};
@@ -36,6 +36,10 @@ pub struct Args {
     /// `cell_pitch_mm`, else 6.2 (NLS Specification 800).
     #[arg(long)]
     pitch_mm: Option<f64>,
+    /// A model file (from `tactread train`): also draw the cells it reads
+    /// (beam search, no lexicon), placed at their frames.
+    #[arg(long)]
+    model: Option<PathBuf>,
     /// Overwrite an existing output file.
     #[arg(long)]
     force: bool,
@@ -147,7 +151,20 @@ pub fn run(args: Args) -> Result<()> {
         title,
         recording: &rec,
         truth,
-        decoded: None,
+        decoded: match &args.model {
+            None => None,
+            Some(path) => {
+                let model = tactread::net::Model::load(path)?;
+                let table = load_table(&lang)?;
+                let decoder = tactread::decode::Decoder::new(
+                    &table,
+                    tactread::decode::BeamParams::default(),
+                )?;
+                let name = args.recording.display().to_string();
+                let d = tactread::pipeline::read_recording(&model, &decoder, &rec, &name)?;
+                Some(tactread::pipeline::place_decoded(&model, &rec, &d))
+            }
+        },
     };
     let svg = recording_view_svg(&view)?;
     write_svg(&args.out, &svg)?;
