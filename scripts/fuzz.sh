@@ -18,7 +18,8 @@
 # (-Zsanitizer=address, sanitizer coverage), which RUSTC_BOOTSTRAP=1 lets
 # the stable compiler accept.
 #
-# Prints one line per target (executions, seconds, result) and writes the
+# Prints one line per target (executions, seconds, executions per second,
+# coverage edges and corpus inputs at the end, result) and writes the
 # same table to fuzz/last-run.txt. A crash leaves the input in
 # fuzz/artifacts/<target>/ and makes the script exit non-zero after the
 # remaining targets have run.
@@ -29,7 +30,7 @@ cd "$ROOT"
 
 RUNS="${1:-1000000}"
 shift || true
-ALL_TARGETS=(csv_frames npy_frames manifest code_table word_list lexicon_file)
+ALL_TARGETS=(csv_frames npy_frames manifest code_table word_list lexicon_file model_file sensor_file)
 if [ "$#" -gt 0 ]; then
     TARGETS=("$@")
 else
@@ -70,11 +71,17 @@ gather() { # gather TARGET FILE... : copy files into the target's seed folder
 }
 
 shopt -s nullglob globstar
-gather csv_frames tests/compat/**/*.csv demo-data/**/*.csv
+gather csv_frames tests/compat/**/*.csv
 gather npy_frames tests/compat/**/*.npy demo-data/**/*.npy
 gather manifest tests/compat/**/*.json demo-data/**/*.json
 gather code_table lexicons/*/code.txt tests/compat/**/code*.txt
 gather lexicon_file tests/compat/**/*.lex
+gather model_file tests/compat/**/model*.json
+gather sensor_file sensors/*.json
+for f in demo-data/**/*.csv; do
+    # The first rows of each demo recording (whole ones are 100-200 KiB).
+    head -n 12 "$f" >"$SCRATCH/csv_frames/$(echo "$f" | tr '/' '_')"
+done
 mkdir -p "$SCRATCH/word_list"
 for f in lexicons/*/words.txt; do
     # The head of each list: the whole lists (half a MiB each) are far
@@ -84,7 +91,7 @@ done
 
 mkdir -p fuzz/corpus
 SUMMARY="$SCRATCH/summary.txt"
-printf '%-14s %12s %9s %10s  %s\n' target executions seconds exec/s result >"$SUMMARY"
+printf '%-14s %12s %9s %8s %9s %8s  %s\n' target executions seconds exec/s coverage corpus result >"$SUMMARY"
 failed=0
 for t in "${TARGETS[@]}"; do
     if [ "${FUZZ_FRESH:-0}" = 1 ]; then
@@ -106,6 +113,9 @@ for t in "${TARGETS[@]}"; do
     secs=$(awk -v a="$start" -v b="$end" 'BEGIN { printf "%.0f", b - a }')
     execs=$(sed -n 's/^stat::number_of_executed_units: *//p' "$log" | tail -n 1)
     execs="${execs:-?}"
+    # libFuzzer's last status line: "#N DONE cov: EDGES ft: F corp: INPUTS/SIZE ...".
+    cov=$(sed -n 's/.*DONE *cov: \([0-9]*\).*/\1/p' "$log" | tail -n 1)
+    corp=$(sed -n 's/.*DONE .* corp: \([0-9]*\)\/.*/\1/p' "$log" | tail -n 1)
     if [ "$rc" -eq 0 ]; then
         result="clean"
     else
@@ -117,7 +127,7 @@ for t in "${TARGETS[@]}"; do
     if [[ "$execs" =~ ^[0-9]+$ ]] && [ "$secs" -gt 0 ]; then
         rate=$((execs / secs))
     fi
-    printf '%-14s %12s %9s %10s  %s\n' "$t" "$execs" "$secs" "$rate" "$result" >>"$SUMMARY"
+    printf '%-14s %12s %9s %8s %9s %8s  %s\n' "$t" "$execs" "$secs" "$rate" "${cov:-?}" "${corp:-?}" "$result" >>"$SUMMARY"
     tail -n 1 "$SUMMARY"
 done
 

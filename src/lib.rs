@@ -47,6 +47,7 @@ pub mod prep;
 pub mod recording;
 pub mod report;
 pub mod simulate;
+mod text_file;
 pub mod train;
 
 pub use braille::{cells_to_unicode, Cell, CellReader, CodeTable, Decoded, ReaderState};

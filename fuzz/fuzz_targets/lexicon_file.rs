@@ -16,10 +16,16 @@ fuzz_target!(|data: &[u8]| {
     };
     let words = lex.words();
     assert_eq!(words.len(), lex.len());
-    for (w, _) in words.iter().take(8) {
+    // A crafted file may hold keys a word list never gives (capitals, bytes
+    // that are not UTF-8), so lookups are only run, not checked.
+    for (w, _) in &words {
         let _ = lex.count(w);
+        let _ = lex.log_prob(w);
+    }
+    // Near-word search costs milliseconds a query under the sanitizer (the
+    // fst crate builds its automaton eagerly): two short queries.
+    if let Some((w, _)) = words.iter().find(|(w, _)| w.len() <= 32) {
         let _ = lex.near(w, 1);
     }
     let _ = lex.near("tea", 2);
-    let _ = lex.log_prob("jar");
 });

@@ -3,7 +3,10 @@
 //!
 //! A word list that parses compiles into a lexicon, which must survive its
 //! own file format (`to_bytes` then `from_bytes` give the same words and
-//! counts), find every listed word, and find a listed word near itself.
+//! counts) and find every listed word. (Near-word search runs in the
+//! `lexicon_file` target: the fst crate builds its Levenshtein automaton
+//! eagerly, milliseconds a query under the sanitizer, which made this
+//! target run at 200 inputs a second.)
 #![no_main]
 
 use libfuzzer_sys::fuzz_target;
@@ -30,16 +33,5 @@ fuzz_target!(|data: &[u8]| {
             "listed word {:?} is found",
             e.word
         );
-    }
-    // The fst crate builds the Levenshtein automaton eagerly, at a cost that
-    // grows with the query (milliseconds under the sanitizer), so search
-    // near two words of natural length only: queries longer than every
-    // listed word are cut short by `near` itself, but a fuzzed list can list
-    // a word of thousands of letters.
-    for e in entries.iter().filter(|e| e.word.len() <= 64).take(2) {
-        assert!(lex
-            .near(&e.word, 1)
-            .iter()
-            .any(|n| n.word == e.word && n.edits == 0));
     }
 });

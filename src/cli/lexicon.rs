@@ -3,7 +3,7 @@
 
 use clap::{Args as ClapArgs, Subcommand};
 use std::path::PathBuf;
-use tactread::lexicon::{parse_word_list, Lexicon};
+use tactread::lexicon::{read_word_list, Lexicon};
 use tactread::{Error, Result};
 
 /// Options of `tactread lexicon`.
@@ -99,9 +99,7 @@ fn build(a: BuildArgs) -> Result<()> {
             reason: "the file exists: pass --force to overwrite it".into(),
         });
     }
-    let text =
-        std::fs::read_to_string(&a.words).map_err(|e| Error::io("cannot read", &a.words, e))?;
-    let entries = parse_word_list(&text, &a.words)?;
+    let entries = read_word_list(&a.words)?;
     if entries.is_empty() {
         return Err(Error::input(
             tactread::Location::file(&a.words),

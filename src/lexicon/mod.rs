@@ -127,6 +127,13 @@ pub fn parse_word_list(text: &str, source: &Path) -> Result<Vec<WordEntry>> {
     Ok(out)
 }
 
+/// Read and parse a word list file (UTF-8 text; invalid UTF-8 is an
+/// [`Error::Input`] naming the line).
+pub fn read_word_list(path: &Path) -> Result<Vec<WordEntry>> {
+    let text = crate::text_file::read_utf8(path, "save the file as UTF-8")?;
+    parse_word_list(&text, path)
+}
+
 /// A word list compiled for lookups: word -> count, in an fst map.
 pub struct Lexicon {
     map: Map<Vec<u8>>,
@@ -199,8 +206,7 @@ impl Lexicon {
 
     /// Parse and compile a word list file.
     pub fn from_word_list_file(path: &Path, lang: &str) -> Result<Lexicon> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
-        Lexicon::from_entries(&parse_word_list(&text, path)?, lang)
+        Lexicon::from_entries(&read_word_list(path)?, lang)
     }
 
     /// The builtin lexicon of `lang` (one of [`BUILTIN_LANGS`]), compiled
@@ -380,13 +386,13 @@ impl Lexicon {
             .map_err(|_| fail("a language tag that is not UTF-8".into()))?
             .to_string();
         let map = Map::new(bytes[30 + n..].to_vec())
-            .map_err(|e| fail(format!("a damaged word map ({e})")))?;
+            .map_err(|e| fail(format!("a damaged word map ({})", fst_detail(&e))))?;
         // The fst crate reads its nodes without bounds checks of its own
         // beyond Rust's, so a damaged map panics on first use: check its
         // CRC-32C over every byte before handing it out.
         map.as_fst()
             .verify()
-            .map_err(|e| fail(format!("a damaged word map ({e})")))?;
+            .map_err(|e| fail(format!("a damaged word map ({})", fst_detail(&e))))?;
         let mut max_word_bytes = 0;
         let mut keys = map.keys();
         while let Some(k) = keys.next() {
@@ -518,6 +524,17 @@ impl fst::Automaton for LazyLevenshtein {
         next.len = 0;
         Some(next)
     }
+}
+
+/// What went wrong inside the fst crate, on one line: its `Error::Fst`
+/// prints only "FST error", the detail is in the wrapped error (and some of
+/// those span lines).
+fn fst_detail(e: &fst::Error) -> String {
+    let text = match e {
+        fst::Error::Fst(inner) => inner.to_string(),
+        other => other.to_string(),
+    };
+    text.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
 #[cfg(test)]
@@ -669,9 +686,13 @@ mod tests {
             assert!(matches!(e, Err(Error::Format { .. })), "cut at {len}");
         }
         let mut d = b.clone();
-        d[map_start + 5] ^= 0xff;
+        d[(map_start + b.len()) / 2] ^= 0xff; // inside the nodes
         let e = Lexicon::from_bytes(d, Path::new("x.lex")).unwrap_err();
-        assert!(e.to_string().contains("damaged word map"), "{e}");
+        assert!(
+            e.to_string()
+                .contains("damaged word map (FST verification failed: expected checksum of"),
+            "{e}"
+        );
     }
 
     #[test]

@@ -139,7 +139,10 @@ impl Model {
 
     /// Reads and validates a model file.
     pub fn load(path: &Path) -> Result<Model> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
+        let text = crate::text_file::read_utf8(
+            path,
+            "a model file is UTF-8 JSON written by tactread: copy it again or train the model again",
+        )?;
         Model::from_json(&text, path)
     }
 

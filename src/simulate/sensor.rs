@@ -266,7 +266,7 @@ impl SensorSpec {
 
     /// Read and validate a sensor file.
     pub fn load(path: &Path) -> Result<SensorSpec> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
+        let text = crate::text_file::read_utf8(path, "save the file as UTF-8")?;
         SensorSpec::from_json(&text, &path.display().to_string())
     }
 
