@@ -7,7 +7,7 @@
 //! trained model file (`--model`).
 
 use clap::Args as ClapArgs;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use tactread::recording::Recording;
 use tactread::report::{
     place_evenly, place_truth, recording_view_svg, view_axis, write_svg, RecordingView,
@@ -43,23 +43,6 @@ pub struct Args {
     /// Overwrite an existing output file.
     #[arg(long)]
     force: bool,
-}
-
-fn load_table(lang: &str) -> Result<CodeTable> {
-    if CodeTable::builtin_langs().contains(&lang) {
-        return CodeTable::builtin(lang);
-    }
-    let path = Path::new(lang);
-    if path.exists() || lang.contains(['/', '\\', '.']) {
-        return CodeTable::from_file(path);
-    }
-    Err(Error::config(
-        "--lang",
-        format!(
-            "unknown language `{lang}`: built in are {}; or give the path of a code table file",
-            CodeTable::builtin_langs().join(", ")
-        ),
-    ))
 }
 
 /// Run `tactread show`.
@@ -117,7 +100,7 @@ pub fn run(args: Args) -> Result<()> {
         );
         Vec::new()
     } else {
-        load_table(&lang)?.encode(&text)?
+        CodeTable::resolve(&lang)?.encode(&text)?
     };
     let truth = match (args.first_cell_mm, args.pitch_mm) {
         (None, None) => place_truth(&rec, &cells),
@@ -155,7 +138,7 @@ pub fn run(args: Args) -> Result<()> {
             None => None,
             Some(path) => {
                 let model = tactread::net::Model::load(path)?;
-                let table = load_table(&lang)?;
+                let table = CodeTable::resolve(&lang)?;
                 let decoder = tactread::decode::Decoder::new(
                     &table,
                     tactread::decode::BeamParams::default(),
