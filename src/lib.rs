@@ -42,6 +42,7 @@ mod fsutil;
 pub mod lexicon;
 pub mod metrics;
 pub mod net;
+pub mod pipeline;
 pub mod prep;
 pub mod recording;
 pub mod report;

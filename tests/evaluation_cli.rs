@@ -166,3 +166,146 @@ fn show_draws_a_recording_view() {
     assert!(String::from_utf8_lossy(&out.stderr).contains("missing.json"));
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+/// `tactread evaluate` on a tiny simulated dataset with a one-epoch model
+/// trained here: the metrics file parses as an evaluation of the test
+/// split, the report is a page, outputs are not overwritten without
+/// `--force`, and a bad DATA path is named in the error.
+#[test]
+fn evaluate_scores_a_dataset_and_writes_metrics_and_report() {
+    let dir = temp_dir("evaluate");
+    let data = dir.join("data");
+    let out = tactread(&[
+        "simulate",
+        "dataset",
+        "--lines",
+        "12",
+        "--preset",
+        "clean",
+        "--lang",
+        "en",
+        "--seed",
+        "5",
+        "--jobs",
+        "1",
+        "--out",
+        s(&data),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let model = dir.join("m.json");
+    let out = tactread(&[
+        "train",
+        "--data",
+        s(&data),
+        "--out",
+        s(&model),
+        "--epochs",
+        "1",
+        "--hidden",
+        "8",
+        "--layers",
+        "1",
+        "--batch",
+        "8",
+        "--threads",
+        "1",
+        "--step-mm",
+        "1.0",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+
+    let (json, html) = (dir.join("metrics.json"), dir.join("report.html"));
+    let args = [
+        "evaluate",
+        s(&model),
+        s(&data),
+        "--json",
+        s(&json),
+        "--report",
+        s(&html),
+        "--resamples",
+        "100",
+        "--threads",
+        "1",
+    ];
+    let out = tactread(&args);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(
+        stdout.contains("character accuracy") && stdout.contains("with lexicon"),
+        "{stdout}"
+    );
+    assert!(stdout.contains("medicine labels"), "{stdout}");
+    let eval = tactread::metrics::Evaluation::load(&json).unwrap();
+    let index: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(data.join("index.json")).unwrap()).unwrap();
+    let n_test = index["recordings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|r| r["split"] == "test")
+        .count();
+    assert!(n_test > 0);
+    assert_eq!(eval.recordings.len(), n_test);
+    assert!(eval.with_lexicon.is_some());
+    // Every test recording's ground truth is its index text.
+    for r in &eval.recordings {
+        assert!(!r.reference_text.is_empty());
+    }
+    let page = std::fs::read_to_string(&html).unwrap();
+    assert!(page.starts_with("<!DOCTYPE html>") || page.starts_with("<!doctype html>"));
+    assert!(page.contains("<svg") && page.contains("machine-read"));
+
+    // Existing outputs are kept unless --force.
+    let out = tactread(&args);
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--force"));
+    let mut forced = args.to_vec();
+    forced.push("--force");
+    assert!(tactread(&forced).status.success());
+
+    // `show --model` draws the decoded cells of one test recording.
+    let test_manifest = index["recordings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["split"] == "test")
+        .unwrap()["manifest"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let svg = dir.join("view.svg");
+    let out = tactread(&[
+        "show",
+        s(&data.join(&test_manifest)),
+        "--out",
+        s(&svg),
+        "--model",
+        s(&model),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(std::fs::read_to_string(&svg).unwrap().contains("<svg"));
+
+    // A DATA path that does not exist is named in the error.
+    let nowhere = dir.join("nowhere");
+    let out = tactread(&["evaluate", s(&model), s(&nowhere)]);
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("nowhere"), "{err}");
+}

@@ -2,7 +2,6 @@
 //! beam search with the code table's state, and lexicon rescoring.
 
 use clap::{Args as ClapArgs, ValueEnum};
-use ndarray::Array2;
 use serde_json::{json, Value};
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -52,7 +51,7 @@ enum Format {
 }
 
 /// Printed on standard error with text output.
-const CAUTION: &str =
+pub(crate) const CAUTION: &str =
     "caution: machine-read braille can be wrong; verify it wherever a misreading \
                        could do harm (medicine labels, dosages, signs)";
 
@@ -61,22 +60,7 @@ pub fn run(args: Args) -> Result<()> {
     let model = Model::load(&args.model)?;
     let lang = args.lang.clone().unwrap_or_else(|| model.lang.clone());
     let table = CodeTable::builtin(&lang)?;
-    let lexicon = match args.lexicon.as_deref() {
-        Some("none") => None,
-        Some(path) => {
-            let lex = Lexicon::load(Path::new(path))?;
-            if !lex.lang().is_empty() && lex.lang() != lang {
-                return Err(Error::Mismatch {
-                    what: format!("language of lexicon {path}"),
-                    expected: lang.clone(),
-                    got: lex.lang().to_string(),
-                    hint: "pass a lexicon built for this language, or --lang to match it".into(),
-                });
-            }
-            Some(lex)
-        }
-        None => Some(Lexicon::builtin(&lang)?),
-    };
+    let lexicon = load_lexicon(args.lexicon.as_deref(), &lang)?;
     let beam = BeamParams {
         beam_width: args.beam,
         n_best: args.n_best.min(args.beam.max(1)),
@@ -101,8 +85,8 @@ pub fn run(args: Args) -> Result<()> {
     for path in &args.recordings {
         let name = path.display().to_string();
         let rec = Recording::load(path)?;
-        let lp = network_output(&model, &rec, &name)?;
-        results.push((name, decoder.decode(lp.view())?));
+        let decoded = tactread::pipeline::read_recording(&model, &decoder, &rec, &name)?;
+        results.push((name, decoded));
     }
 
     let stdout = std::io::stdout();
@@ -140,18 +124,6 @@ pub fn run(args: Args) -> Result<()> {
     }
 }
 
-/// The model's `[n_frames, 65]` log-probabilities for a recording.
-pub(crate) fn network_output(model: &Model, rec: &Recording, name: &str) -> Result<Array2<f32>> {
-    model.check_taxels(rec.frames.ncols(), name)?;
-    let x = model.prep.apply(rec, name)?;
-    model
-        .network
-        .forward(&[x.view()])?
-        .into_iter()
-        .next()
-        .ok_or_else(|| Error::config("model", "the network returned no output"))
-}
-
 /// Rescoring weights from a JSON file written by `tactread lexicon tune`.
 pub(crate) fn load_weights(path: &Path) -> Result<RescoreWeights> {
     let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
@@ -163,6 +135,28 @@ pub(crate) fn load_weights(path: &Path) -> Result<RescoreWeights> {
     })?;
     w.check()?;
     Ok(w)
+}
+
+/// The lexicon a `--lexicon` option names: a file, `none`, or (when not
+/// given) the builtin lexicon of `lang`. A file built for another language
+/// is refused.
+pub(crate) fn load_lexicon(arg: Option<&str>, lang: &str) -> Result<Option<Lexicon>> {
+    Ok(match arg {
+        Some("none") => None,
+        Some(path) => {
+            let lex = Lexicon::load(Path::new(path))?;
+            if !lex.lang().is_empty() && lex.lang() != lang {
+                return Err(Error::Mismatch {
+                    what: format!("language of lexicon {path}"),
+                    expected: lang.to_string(),
+                    got: lex.lang().to_string(),
+                    hint: "pass a lexicon built for this language, or --lang to match it".into(),
+                });
+            }
+            Some(lex)
+        }
+        None => Some(Lexicon::builtin(lang)?),
+    })
 }
 
 fn round(x: f64) -> f64 {

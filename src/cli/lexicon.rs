@@ -173,7 +173,7 @@ fn tune(a: TuneArgs) -> Result<()> {
                 "the manifest gives no text: tuning needs recordings whose text is known",
             )
         })?;
-        outputs.push((super::decode::network_output(&model, &rec, &name)?, truth));
+        outputs.push((tactread::pipeline::log_probs(&model, &rec, &name)?, truth));
     }
     let items: Vec<TuneItem> = outputs
         .iter()

@@ -9,6 +9,7 @@ mod cells;
 mod compare;
 mod decode;
 mod demo;
+mod evaluate;
 mod inspect;
 mod lexicon;
 mod show;
@@ -41,6 +42,8 @@ enum Command {
     Compare(compare::Args),
     /// Draw one recording's taxel signals with its ground-truth cells as an SVG file.
     Show(show::Args),
+    /// Read a test set with a trained model and score it, with and without the lexicon.
+    Evaluate(Box<evaluate::Args>),
     /// Train a reading model on a dataset folder.
     Train(Box<train::Args>),
 }
@@ -56,6 +59,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Simulate(args) => simulate::run(*args),
         Command::Compare(args) => compare::run(args),
         Command::Show(args) => show::run(args),
+        Command::Evaluate(args) => evaluate::run(*args),
         Command::Train(args) => train::run(*args),
     }
 }

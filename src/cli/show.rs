@@ -4,10 +4,10 @@
 //!
 //! The ground truth is the manifest's `text`, written in cells with the
 //! language pack's code table. Drawing the decoded cells as well needs a
-//! trained model file; that option comes with the model format.
+//! trained model file (`--model`).
 
 use clap::Args as ClapArgs;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use tactread::recording::Recording;
 use tactread::report::{
     place_evenly, place_truth, recording_view_svg, view_axis, write_svg, RecordingView,
@@ -36,26 +36,13 @@ pub struct Args {
     /// `cell_pitch_mm`, else 6.2 (NLS Specification 800).
     #[arg(long)]
     pitch_mm: Option<f64>,
+    /// A model file (from `tactread train`): also draw the cells it reads
+    /// (beam search, no lexicon), placed at their frames.
+    #[arg(long)]
+    model: Option<PathBuf>,
     /// Overwrite an existing output file.
     #[arg(long)]
     force: bool,
-}
-
-fn load_table(lang: &str) -> Result<CodeTable> {
-    if CodeTable::builtin_langs().contains(&lang) {
-        return CodeTable::builtin(lang);
-    }
-    let path = Path::new(lang);
-    if path.exists() || lang.contains(['/', '\\', '.']) {
-        return CodeTable::from_file(path);
-    }
-    Err(Error::config(
-        "--lang",
-        format!(
-            "unknown language `{lang}`: built in are {}; or give the path of a code table file",
-            CodeTable::builtin_langs().join(", ")
-        ),
-    ))
 }
 
 /// Run `tactread show`.
@@ -113,7 +100,7 @@ pub fn run(args: Args) -> Result<()> {
         );
         Vec::new()
     } else {
-        load_table(&lang)?.encode(&text)?
+        CodeTable::resolve(&lang)?.encode(&text)?
     };
     let truth = match (args.first_cell_mm, args.pitch_mm) {
         (None, None) => place_truth(&rec, &cells),
@@ -147,7 +134,20 @@ pub fn run(args: Args) -> Result<()> {
         title,
         recording: &rec,
         truth,
-        decoded: None,
+        decoded: match &args.model {
+            None => None,
+            Some(path) => {
+                let model = tactread::net::Model::load(path)?;
+                let table = CodeTable::resolve(&lang)?;
+                let decoder = tactread::decode::Decoder::new(
+                    &table,
+                    tactread::decode::BeamParams::default(),
+                )?;
+                let name = args.recording.display().to_string();
+                let d = tactread::pipeline::read_recording(&model, &decoder, &rec, &name)?;
+                Some(tactread::pipeline::place_decoded(&model, &rec, &d))
+            }
+        },
     };
     let svg = recording_view_svg(&view)?;
     write_svg(&args.out, &svg)?;

@@ -421,17 +421,6 @@ impl Lexicon {
     }
 }
 
-/// What went wrong inside the fst crate, on one line: its `Error::Fst`
-/// prints only "FST error", the detail is in the wrapped error (and some of
-/// those span lines).
-fn fst_detail(e: &fst::Error) -> String {
-    let text = match e {
-        fst::Error::Fst(inner) => inner.to_string(),
-        other => other.to_string(),
-    };
-    text.split_whitespace().collect::<Vec<_>>().join(" ")
-}
-
 /// A Levenshtein automaton over UTF-8 bytes that computes the edit-distance
 /// row of each character as the fst search reaches it (the classic
 /// dynamic-programming walk of a trie; Levenshtein 1966 distance, Wagner and
@@ -535,6 +524,17 @@ impl fst::Automaton for LazyLevenshtein {
         next.len = 0;
         Some(next)
     }
+}
+
+/// What went wrong inside the fst crate, on one line: its `Error::Fst`
+/// prints only "FST error", the detail is in the wrapped error (and some of
+/// those span lines).
+fn fst_detail(e: &fst::Error) -> String {
+    let text = match e {
+        fst::Error::Fst(inner) => inner.to_string(),
+        other => other.to_string(),
+    };
+    text.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
 #[cfg(test)]
