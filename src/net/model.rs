@@ -82,6 +82,26 @@ pub struct TrainingSummary {
     /// The other options, as given.
     #[serde(default)]
     pub options: serde_json::Map<String, serde_json::Value>,
+    /// The model this one was fine-tuned from (`tactread train --init`);
+    /// absent (and not written) for a model trained from scratch, so model
+    /// files written before the field existed still load.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fine_tuned_from: Option<FineTunedFrom>,
+}
+
+/// Where a fine-tuned model started (see [`TrainingSummary::fine_tuned_from`]).
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct FineTunedFrom {
+    /// The starting model as it was named (a path, or `default` for the
+    /// embedded default model).
+    pub model: String,
+    /// The dataset the starting model was trained on (its summary's `data`).
+    pub data: String,
+    /// Epochs the starting model had been trained.
+    pub epochs: usize,
+    /// Whether the preprocessing's baseline and scale were re-estimated on
+    /// the new data (else the starting model's were kept).
+    pub refit_prep: bool,
 }
 
 /// A trained model: network, preprocessing and metadata.
