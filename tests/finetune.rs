@@ -157,3 +157,95 @@ fn fine_tuning_beats_the_untouched_model_and_training_from_scratch() {
         "fine-tuned {tuned_v:?} vs from scratch {scratch_v:?}"
     );
 }
+
+fn tactread(dir: &Path, args: &[&str]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_tactread"))
+        .current_dir(dir)
+        .args(args)
+        .output()
+        .expect("the tactread binary runs")
+}
+
+#[test]
+fn cli_train_init_fine_tunes_and_refuses_what_cannot_agree() {
+    let dir = std::env::temp_dir().join(format!("tactread-finetune-cli-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    let sim = |extra: &[&str], out: &str| {
+        let mut args = vec![
+            "simulate", "dataset", "--lines", "10", "--lang", "en", "--rate", "100", "--seed", "3",
+            "--jobs", "1", "--out", out,
+        ];
+        args.extend(extra);
+        let o = tactread(&dir, &args);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    };
+    sim(&["--page", "low-dots"], "low");
+    sim(&["--sensor", "pad4x3"], "pad");
+    let err = |o: &std::process::Output| String::from_utf8_lossy(&o.stderr).into_owned();
+
+    let o = tactread(
+        &dir,
+        &[
+            "train",
+            "--init",
+            "default",
+            "--data",
+            "low",
+            "--out",
+            "ft.json",
+            "--epochs",
+            "1",
+            "--threads",
+            "1",
+            "--batch",
+            "4",
+        ],
+    );
+    assert!(o.status.success(), "{}", err(&o));
+    assert!(err(&o).contains("fine-tuning default"), "{}", err(&o));
+    let tuned = Model::load(&dir.join("ft.json")).unwrap();
+    let pre = Model::from_json(DEFAULT_MODEL, Path::new("models/default.json")).unwrap();
+    assert_eq!(tuned.prep, pre.prep);
+    assert_eq!(tuned.network.config(), pre.network.config());
+    let f = tuned.training.fine_tuned_from.as_ref().unwrap();
+    assert_eq!(f.model, "default");
+    assert!(!f.refit_prep);
+    // The fine-tuning default peak rate; stored as f32.
+    let lr = tuned.training.options["lr"].as_f64().unwrap();
+    assert!((lr - 1e-3).abs() < 1e-9, "{lr}");
+
+    // Options that disagree with the model: exit 2, naming the option.
+    let o = tactread(
+        &dir,
+        &[
+            "train", "--init", "default", "--data", "low", "--out", "x.json", "--hidden", "32",
+        ],
+    );
+    assert_eq!(o.status.code(), Some(2), "{}", err(&o));
+    assert!(
+        err(&o).contains("hidden") && err(&o).contains("64"),
+        "{}",
+        err(&o)
+    );
+    for bad in [
+        &["--init", "default", "--step-mm", "0.4"][..],
+        &["--refit-prep"][..],
+    ] {
+        let mut args = vec!["train", "--data", "low", "--out", "x.json"];
+        args.extend(bad);
+        let o = tactread(&dir, &args);
+        assert_eq!(o.status.code(), Some(2), "{bad:?}: {}", err(&o));
+    }
+    // Another sensor's recordings (12 taxels): exit 3, naming the file.
+    let o = tactread(
+        &dir,
+        &[
+            "train", "--init", "default", "--data", "pad", "--out", "x.json", "--epochs", "1",
+        ],
+    );
+    assert_eq!(o.status.code(), Some(3), "{}", err(&o));
+    assert!(err(&o).contains("taxel count of pad/"), "{}", err(&o));
+    assert!(!dir.join("x.json").exists());
+    std::fs::remove_dir_all(&dir).unwrap();
+}

@@ -302,6 +302,17 @@ mod tests {
     }
 
     #[test]
+    fn files_without_the_fine_tuning_field_still_load() {
+        // models/default.json was written before `fine_tuned_from` existed.
+        let text = include_str!("../../models/default.json");
+        assert!(!text.contains("fine_tuned_from"));
+        let m = Model::from_json(text, Path::new("models/default.json")).unwrap();
+        assert!(m.training.fine_tuned_from.is_none());
+        // And a model trained from scratch does not write it.
+        assert!(!model().to_json().contains("fine_tuned_from"));
+    }
+
+    #[test]
     fn foreign_and_damaged_files_are_format_errors() {
         let p = Path::new("m.json");
         let cases = [

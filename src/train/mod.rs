@@ -911,6 +911,159 @@ mod tests {
     }
 
     #[test]
+    fn fine_tuning_starts_from_the_model_and_checks_what_must_agree() {
+        let (train_set, val, table) = toy_data();
+        let dir = std::env::temp_dir().join(format!("tactread-ft-test-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let go = |_: Event| ControlFlow::Continue(());
+        let pre = train(
+            &config(3),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &dir.join("pre.json"),
+            false,
+            go,
+        )
+        .unwrap()
+        .model;
+        let from = FineTune {
+            model: &pre,
+            name: "pre.json",
+            refit_prep: false,
+        };
+        // Another architecture is refused before any work.
+        let mut other = config(2);
+        other.hidden = 10;
+        let out = dir.join("ft.json");
+        match fine_tune(&other, from, &train_set, &val, &table, "t", &out, false, go) {
+            Err(Error::Config { name, message }) => {
+                assert_eq!(name, "hidden");
+                assert!(
+                    message.contains("pre.json") && message.contains("12"),
+                    "{message}"
+                );
+            }
+            other => panic!("expected a config error, got {:?}", other.map(|_| ())),
+        }
+        let mut other = config(2);
+        other.bidirectional = true;
+        assert!(matches!(
+            fine_tune(&other, from, &train_set, &val, &table, "t", &out, false, go),
+            Err(Error::Config { .. })
+        ));
+        // Recordings the model's preprocessing cannot read, named.
+        let mut five = val.clone();
+        five[2].recording.frames = five[2]
+            .recording
+            .frames
+            .slice(ndarray::s![.., ..5])
+            .to_owned();
+        match fine_tune(
+            &config(2),
+            from,
+            &train_set,
+            &five,
+            &table,
+            "t",
+            &out,
+            false,
+            go,
+        ) {
+            Err(Error::Mismatch { what, .. }) => assert!(what.contains(&five[2].name), "{what}"),
+            other => panic!("expected a mismatch, got {:?}", other.map(|_| ())),
+        }
+        let mut blind = train_set.clone();
+        blind[4].recording.position_mm = None;
+        match fine_tune(&config(2), from, &blind, &val, &table, "t", &out, false, go) {
+            Err(Error::Mismatch { what, .. }) => {
+                assert!(
+                    what.contains("position") && what.contains(&blind[4].name),
+                    "{what}"
+                )
+            }
+            other => panic!("expected a mismatch, got {:?}", other.map(|_| ())),
+        }
+
+        // A run: the preprocessing is kept, the start recorded, and the
+        // first epoch starts from the trained weights, not random ones
+        // (its training loss is far below a fresh network's).
+        let tuned = fine_tune(
+            &config(1),
+            from,
+            &train_set,
+            &val,
+            &table,
+            "t",
+            &out,
+            false,
+            go,
+        )
+        .unwrap()
+        .model;
+        assert_eq!(tuned.prep, pre.prep);
+        let f = tuned.training.fine_tuned_from.clone().unwrap();
+        assert_eq!(
+            (f.model.as_str(), f.data.as_str(), f.epochs),
+            ("pre.json", "toy", 3)
+        );
+        let fresh = train(
+            &config(1),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &dir.join("fresh.json"),
+            false,
+            go,
+        )
+        .unwrap()
+        .model;
+        assert!(
+            tuned.training.train_loss < fresh.training.train_loss,
+            "{} vs {}",
+            tuned.training.train_loss,
+            fresh.training.train_loss
+        );
+        assert_eq!(Model::load(&out).unwrap(), tuned);
+
+        // --refit-prep: baseline and scale from the new data (here shifted
+        // by 0.5 on every taxel), the grid kept.
+        let shifted: Vec<Example> = train_set
+            .iter()
+            .map(|e| {
+                let mut e = e.clone();
+                e.recording.frames.mapv_inplace(|v| v + 0.5);
+                e
+            })
+            .collect();
+        let refit = FineTune {
+            refit_prep: true,
+            ..from
+        };
+        let tuned = fine_tune(
+            &config(1),
+            refit,
+            &shifted,
+            &val,
+            &table,
+            "t",
+            &out,
+            false,
+            go,
+        )
+        .unwrap()
+        .model;
+        assert_eq!(tuned.prep.grid, pre.prep.grid);
+        for (a, b) in tuned.prep.baseline.iter().zip(&pre.prep.baseline) {
+            approx::assert_abs_diff_eq!(*a, b + 0.5, epsilon = 1e-4);
+        }
+        assert!(tuned.training.fine_tuned_from.unwrap().refit_prep);
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
     fn bad_options_are_config_errors() {
         let c = TrainConfig {
             batch: 0,
