@@ -30,7 +30,9 @@ const REPORT_VIEWS: usize = 3;
 /// Options of `tactread evaluate`.
 #[derive(Debug, ClapArgs)]
 pub struct Args {
-    /// The model file (from `tactread train`).
+    /// The model file (from `tactread train`), or `default` for the
+    /// embedded default model (hex24 fingertip; en, de, fr, es; a file called
+    /// `default` is read as `./default`).
     model: PathBuf,
     /// A dataset folder (with index.json), or recording manifests.
     #[arg(required = true)]
@@ -191,7 +193,7 @@ pub fn run(args: Args) -> Result<()> {
     check_output(&args.json, "--json", args.force)?;
     check_output(&args.report, "--report", args.force)?;
     let items = items(&args)?;
-    let model = Model::load(&args.model)?;
+    let model = super::load_model(&args.model)?;
     // Each recording is read in its own language (from the dataset index or
     // its manifest, else the model's), unless --lang names one for all.
     let item_langs: Vec<String> = items
