@@ -9,6 +9,7 @@ use std::ops::ControlFlow;
 use std::path::PathBuf;
 use std::time::Instant;
 use tactread::braille::CodeTable;
+use tactread::fsutil::OutputGuard;
 use tactread::recording::{Dataset, Split};
 use tactread::train::{self, Event, Example, TrainConfig};
 use tactread::{Error, Result};
@@ -117,14 +118,29 @@ pub fn run(args: Args) -> Result<()> {
         decimate: args.decimate,
     };
     config.check()?;
-    if args.out.exists() && !args.force && !args.resume {
-        return Err(Error::Output {
-            path: args.out.clone(),
-            reason: "the file exists: pass --force to replace it, or --resume to continue its run"
-                .into(),
-        });
+    let ckpt = train::checkpoint_path(&args.out);
+    if !args.force && !args.resume {
+        for path in [&args.out, &ckpt] {
+            if path.exists() {
+                return Err(Error::Output {
+                    path: path.clone(),
+                    reason: "the file exists: pass --force to replace it, or --resume to \
+                             continue its run"
+                        .into(),
+                });
+            }
+        }
     }
     let ds = Dataset::open(&args.data)?;
+    // The model and its checkpoint never go over the dataset's files (the
+    // index, a manifest), even with --force; frames files are checked once
+    // the manifests are read.
+    let mut guard = OutputGuard::new(true);
+    guard
+        .input(ds.dir().join(tactread::recording::DATASET_INDEX))
+        .inputs(ds.entries().iter().map(|e| ds.manifest_path(e)));
+    guard.file(&args.out, "--out")?;
+    guard.file(&ckpt, "--out (its checkpoint)")?;
     let mut langs: Vec<&str> = ds.entries().iter().map(|e| e.lang.as_str()).collect();
     langs.sort_unstable();
     langs.dedup();
@@ -152,6 +168,13 @@ pub fn run(args: Args) -> Result<()> {
                 load_split(&ds, Split::Test)?,
             ))
         })?;
+    for e in train_set.iter().chain(&val).chain(&test) {
+        let manifest = std::path::Path::new(&e.name);
+        let dir = manifest.parent().unwrap_or(std::path::Path::new(""));
+        guard.input(dir.join(&e.recording.manifest.frames));
+    }
+    guard.file(&args.out, "--out")?;
+    guard.file(&ckpt, "--out (its checkpoint)")?;
     eprintln!(
         "{}: {} train, {} validation, {} test recordings ({lang}), loaded in {:.1} s",
         args.data.display(),
