@@ -312,6 +312,10 @@ pub fn train(
     schedule.warmup = schedule.warmup.min(total / 10 + 1);
 
     let ckpt_path = checkpoint_path(out);
+    // Temporaries left by a run killed while writing are never read, but
+    // would pile up: remove them (one run at a time writes these files).
+    crate::fsutil::remove_stale_temps(out);
+    crate::fsutil::remove_stale_temps(&ckpt_path);
     let mut net = Network::new(gru, config.seed)?;
     let mut adam = Adam::new(AdamConfig::default(), &net.param_sizes());
     let mut first_epoch = 0usize;
@@ -319,8 +323,10 @@ pub fn train(
     let mut stale = 0usize;
     let mut seconds_before = 0.0;
     if resume {
-        let text = std::fs::read_to_string(&ckpt_path)
-            .map_err(|e| Error::io("cannot read the checkpoint", &ckpt_path, e))?;
+        let text = crate::fsutil::read_utf8(
+            &ckpt_path,
+            "a checkpoint is UTF-8 JSON written by tactread: start again without --resume",
+        )?;
         let ck: Checkpoint = serde_json::from_str(&text).map_err(|e| Error::Format {
             path: ckpt_path.clone(),
             expected: format!("{CKPT_FORMAT} version 1"),
@@ -389,8 +395,14 @@ pub fn train(
     };
 
     let mut history = Vec::new();
+    // The model file is written before the checkpoint, so a run killed
+    // between the two leaves a model one epoch ahead of its checkpoint:
+    // only a model of the checkpoint's best epoch is kept (the epoch after
+    // is run again, and saves its model again if it is still the best).
     let mut best_model: Option<Model> = if resume && out.exists() {
-        Model::load(out).ok()
+        Model::load(out)
+            .ok()
+            .filter(|m| best.as_ref().map(|b| b.0) == Some(m.training.best_epoch))
     } else {
         None
     };
@@ -473,12 +485,27 @@ pub fn train(
             break;
         }
     }
-    let mut model = best_model.ok_or_else(|| {
-        Error::config(
-            "epochs",
-            "no epoch finished (the time limit was reached first): allow more time",
-        )
-    })?;
+    let mut model = match (best_model, &best) {
+        (Some(m), _) => m,
+        (None, Some((epoch, _, _))) => {
+            return Err(Error::Mismatch {
+                what: format!("model file {}", out.display()),
+                expected: format!(
+                    "the model of epoch {epoch}, the best in {}",
+                    ckpt_path.display()
+                ),
+                got: "another model or none".into(),
+                hint: "resume with more --epochs, or start again with --force (without --resume)"
+                    .into(),
+            })
+        }
+        (None, None) => {
+            return Err(Error::config(
+                "epochs",
+                "no epoch finished (the time limit was reached first): allow more time",
+            ))
+        }
+    };
     // Record the final epoch count and time in the summary of the best model.
     if let Some(b) = &best {
         model.training = summary_for(epoch, b, seconds_before + started.elapsed().as_secs_f64());
