@@ -36,40 +36,65 @@ fn folder_of(path: &Path) -> PathBuf {
 /// `path` is untouched. This does not check whether `path` may be replaced:
 /// commands do that first with [`OutputGuard`].
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let tmp = write_temp(path, |w| w.write_all(bytes))?;
+    if let Err(e) = std::fs::rename(&tmp, path) {
+        let _ = std::fs::remove_file(&tmp);
+        return Err(Error::io("cannot write", path, e));
+    }
+    sync_folder(path);
+    Ok(())
+}
+
+/// The first half of an atomic write, for writers that stream or commit
+/// several files together (`Recording::save`): write a new temporary file
+/// beside `target` (`.NAME.tmp-PID-N`) with `fill`, flush it to disk and
+/// return its path, for the caller to rename over `target` (then
+/// [`sync_folder`]). The temporary is removed if anything fails.
+pub(crate) fn write_temp(
+    target: &Path,
+    fill: impl FnOnce(&mut std::io::BufWriter<&std::fs::File>) -> std::io::Result<()>,
+) -> Result<PathBuf> {
     static COUNTER: AtomicUsize = AtomicUsize::new(0);
-    let dir = folder_of(path);
-    let name = path
+    let name = target
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "output".to_string());
-    let tmp = dir.join(format!(
+    let tmp = folder_of(target).join(format!(
         ".{name}{TMP_MARK}{}-{}",
         std::process::id(),
         COUNTER.fetch_add(1, Ordering::Relaxed)
     ));
+    let file = std::fs::OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .open(&tmp)
+        .map_err(|e| Error::io("cannot create", &tmp, e))?;
     let result = (|| {
-        let mut f = std::fs::OpenOptions::new()
-            .write(true)
-            .create_new(true)
-            .open(&tmp)
-            .map_err(|e| Error::io("cannot create", &tmp, e))?;
-        f.write_all(bytes)
-            .map_err(|e| Error::io("cannot write", &tmp, e))?;
-        f.sync_all()
-            .map_err(|e| Error::io("cannot write", &tmp, e))?;
-        drop(f);
-        std::fs::rename(&tmp, path).map_err(|e| Error::io("cannot write", path, e))
+        let mut w = std::io::BufWriter::new(&file);
+        fill(&mut w)?;
+        w.flush()?;
+        drop(w);
+        file.sync_all()
     })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    #[cfg(unix)]
-    if result.is_ok() {
-        if let Ok(d) = std::fs::File::open(&dir) {
-            let _ = d.sync_all();
+    drop(file);
+    match result {
+        Ok(()) => Ok(tmp),
+        Err(e) => {
+            let _ = std::fs::remove_file(&tmp);
+            Err(Error::io("cannot write", target, e))
         }
     }
-    result
+}
+
+/// Flush the folder entry of `path` to disk where the platform allows it
+/// (after a rename); failures are ignored (the file itself is synced).
+pub(crate) fn sync_folder(path: &Path) {
+    #[cfg(unix)]
+    if let Ok(d) = std::fs::File::open(folder_of(path)) {
+        let _ = d.sync_all();
+    }
+    #[cfg(not(unix))]
+    let _ = path;
 }
 
 /// Remove temporary files that [`write_atomic`] left beside `target` when
@@ -293,6 +318,14 @@ mod tests {
         let leftovers = std::fs::read_dir(&dir).unwrap().count();
         assert_eq!(leftovers, 1);
         assert!(write_atomic(&dir.join("no/such/dir/x"), b"x").is_err());
+        // A writer that fails half-way leaves neither the target nor a temporary.
+        let e = write_temp(&dir.join("half.txt"), |w| {
+            w.write_all(b"half")?;
+            Err(std::io::Error::other("disk full"))
+        })
+        .unwrap_err();
+        assert!(matches!(e, Error::Io { .. }), "{e}");
+        assert_eq!(std::fs::read_dir(&dir).unwrap().count(), 1);
         std::fs::remove_dir_all(&dir).unwrap();
     }
 
