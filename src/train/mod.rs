@@ -784,6 +784,69 @@ mod tests {
         std::fs::remove_dir_all(&dir).unwrap();
     }
 
+    /// A run killed after writing a better model but before its checkpoint
+    /// leaves the model one epoch ahead. Reproduced by putting back the
+    /// previous epoch's checkpoint: resuming runs that epoch again and ends
+    /// as the uninterrupted run; with no epoch left to run it is an error,
+    /// not a model labelled with the wrong epoch.
+    #[test]
+    fn model_ahead_of_its_checkpoint_is_run_again() {
+        let (train_set, val, table) = toy_data();
+        let dir = std::env::temp_dir().join(format!("tactread-train-ahead-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).unwrap();
+        let (a, b) = (dir.join("a.json"), dir.join("b.json"));
+        let go = |_: Event| ControlFlow::Continue(());
+        let stop_at = |n: usize| {
+            move |e: Event| match e {
+                Event::Epoch { epoch, .. } if epoch == n => ControlFlow::Break(()),
+                _ => ControlFlow::Continue(()),
+            }
+        };
+        train(&config(3), &train_set, &val, &table, "toy", &a, false, go).unwrap();
+        train(
+            &config(3),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &b,
+            false,
+            stop_at(1),
+        )
+        .unwrap();
+        let ckpt_1 = std::fs::read(checkpoint_path(&b)).unwrap();
+        train(
+            &config(3),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &b,
+            true,
+            stop_at(2),
+        )
+        .unwrap();
+        assert_eq!(
+            Model::load(&b).unwrap().training.best_epoch,
+            2,
+            "the scenario needs epoch 2 to be the best so far"
+        );
+        std::fs::write(checkpoint_path(&b), &ckpt_1).unwrap();
+
+        // No epoch left to run (--epochs 1): refused.
+        let err = train(&config(1), &train_set, &val, &table, "toy", &b, true, go).unwrap_err();
+        assert!(matches!(err, Error::Mismatch { .. }), "{err}");
+        assert!(err.to_string().contains("model of epoch 1"), "{err}");
+
+        // Resumed to the end: the uninterrupted run's model.
+        train(&config(3), &train_set, &val, &table, "toy", &b, true, go).unwrap();
+        let (ma, mb) = (Model::load(&a).unwrap(), Model::load(&b).unwrap());
+        assert_eq!(ma.training.best_epoch, mb.training.best_epoch);
+        assert!(ma.network == mb.network, "resumed model differs");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
     #[test]
     fn bad_options_are_config_errors() {
         let c = TrainConfig {
