@@ -1090,6 +1090,56 @@ fn row_r54_invalid_utf8_in_simulator_text_file() {
     );
 }
 
+// ---- Outputs ------------------------------------------------------------
+
+#[test]
+fn row_r55_output_exists() {
+    let d = scratch("r55");
+    write(&d, "words.txt", "tea\n");
+    write(&d, "w.lex", "keep me");
+    fails(
+        &d,
+        &["lexicon", "build", "words.txt", "--out", "w.lex"],
+        4,
+        "error: refusing to write w.lex: the file exists: pass --force to replace it, or choose \
+         another --out",
+    );
+    assert_eq!(std::fs::read(d.join("w.lex")).unwrap(), b"keep me");
+}
+
+#[test]
+fn row_r56_output_is_an_input() {
+    let d = scratch("r56");
+    write(&d, "words.txt", "tea\n");
+    fails(
+        &d,
+        &[
+            "lexicon",
+            "build",
+            "words.txt",
+            "--out",
+            "./words.txt",
+            "--force",
+        ],
+        4,
+        "error: refusing to write ./words.txt: it is words.txt, an input of this command: choose \
+         another --out (--force never writes over an input)",
+    );
+    assert_eq!(std::fs::read(d.join("words.txt")).unwrap(), b"tea\n");
+}
+
+#[test]
+fn row_r57_resume_without_a_checkpoint() {
+    let d = scratch("r57");
+    fails(
+        &d,
+        &["train", "--data", "data", "--out", "m.json", "--resume"],
+        2,
+        "error: invalid --resume: m.json.ckpt does not exist, so there is no interrupted run of \
+         m.json to continue: check --out, or start the run without --resume",
+    );
+}
+
 // ---- Helpers for model and sensor files --------------------------------
 
 /// A valid two-frame recording `scan.json` of 3 taxels, for the model rows.

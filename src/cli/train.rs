@@ -158,6 +158,17 @@ pub fn run(args: Args) -> Result<()> {
     };
     config.check()?;
     let ckpt = train::checkpoint_path(&args.out);
+    if args.resume && !ckpt.exists() {
+        return Err(Error::config(
+            "--resume",
+            format!(
+                "{} does not exist, so there is no interrupted run of {} to continue: check \
+                 --out, or start the run without --resume",
+                ckpt.display(),
+                args.out.display()
+            ),
+        ));
+    }
     if !args.force && !args.resume {
         for path in [&args.out, &ckpt] {
             if path.exists() {
