@@ -225,6 +225,12 @@ fn simulate_dataset() {
     let mut forced = args.to_vec();
     forced.push("--force");
     ok(&tactread(&forced));
+    // A run stopped before its index (written last) leaves an unfinished
+    // dataset: refused without --force, replaced with it.
+    std::fs::remove_file(data.join("index.json")).unwrap();
+    refused(&tactread(&args), &data, "holds an unfinished dataset");
+    ok(&tactread(&forced));
+    assert!(data.join("index.json").exists());
     // (c): the text file lies inside the folder that --force replaces.
     let lines = data.join("train").join("lines.txt");
     std::fs::write(&lines, "tea\nferry\n").unwrap();
