@@ -15,7 +15,7 @@ use tactread::recording::{Dataset, Split};
 use tactread::report::{place_truth, write_html_report, RecordingView};
 use tactread::{Error, Result};
 
-/// The default model (hex24, English), trained by
+/// The default model (hex24; en, de, fr, es), trained by
 /// `scripts/train_default_model.sh`; see docs/default-model.md.
 const DEFAULT_MODEL: &str = include_str!("../../models/default.json");
 
@@ -79,7 +79,11 @@ pub fn run(args: Args) -> Result<()> {
         "tactread demo: reading {} test recordings of {} with the default model ({})",
         entries.len(),
         data.display(),
-        model.lang
+        if model.training.languages.is_empty() {
+            model.lang.clone()
+        } else {
+            model.training.languages.join(", ")
+        }
     );
 
     let mut evals = Vec::new();
