@@ -1,5 +1,6 @@
 //! What each command writes (docs/outputs.md), through the built binary:
-//! for every command that writes files, (b) an existing output is not
+//! for every command that writes files, (a) no temporary of its atomic
+//! writes is left behind, (b) an existing output is not
 //! replaced without `--force` (exit 4, the file named, `--force` named)
 //! and is with it, and (c) an output that is one of the command's own
 //! inputs is refused even with `--force`, leaving the input as it was.
@@ -90,6 +91,21 @@ fn untrained_model(manifest: &Path, path: &Path) {
         .unwrap();
 }
 
+/// (a): no temporary of an atomic write is left anywhere under `dir`.
+fn no_temporaries(dir: &Path) {
+    for entry in std::fs::read_dir(dir).unwrap().flatten() {
+        let name = entry.file_name().to_string_lossy().into_owned();
+        assert!(
+            !name.contains(".tmp-"),
+            "left behind: {}",
+            entry.path().display()
+        );
+        if entry.path().is_dir() {
+            no_temporaries(&entry.path());
+        }
+    }
+}
+
 fn read(p: &Path) -> Vec<u8> {
     std::fs::read(p).unwrap()
 }
@@ -125,6 +141,7 @@ fn lexicon_build() {
     let o = tactread(&["lexicon", "build", s(&words), "--out", s(&same), "--force"]);
     refused(&o, &words, INPUT);
     assert_eq!(read(&words), before);
+    no_temporaries(&d);
     std::fs::remove_dir_all(&d).unwrap();
 }
 
@@ -167,6 +184,7 @@ fn lexicon_tune() {
     ]);
     refused(&o, &frames, INPUT);
     assert_eq!(read(&frames), before);
+    no_temporaries(&d);
     std::fs::remove_dir_all(&d).unwrap();
 }
 
@@ -203,6 +221,7 @@ fn simulate_one_recording() {
     refused(&o, &text, INPUT);
     assert_eq!(read(&text), b"tea\n");
     assert!(!d.join("line.json").exists());
+    no_temporaries(&d);
     std::fs::remove_dir_all(&d).unwrap();
 }
 
@@ -245,6 +264,7 @@ fn simulate_dataset() {
     ]);
     refused(&o, &lines, INPUT);
     assert_eq!(read(&lines), b"tea\nferry\n");
+    no_temporaries(&d);
     std::fs::remove_dir_all(&d).unwrap();
 }
 
@@ -291,6 +311,7 @@ fn train() {
         refused(&args(input, true), input, INPUT);
         assert_eq!(&read(input), &before);
     }
+    no_temporaries(&d);
     std::fs::remove_dir_all(&d).unwrap();
 }
 
@@ -330,6 +351,7 @@ fn evaluate() {
     }
     let o = run(&["--json", s(&report), "--report", s(&report), "--force"]);
     refused(&o, &report, "--json writes the same file");
+    no_temporaries(&d);
     std::fs::remove_dir_all(&d).unwrap();
 }
 
@@ -362,6 +384,7 @@ fn show() {
     ]);
     refused(&o, &model, INPUT);
     assert_eq!(read(&model), before);
+    no_temporaries(&d);
     std::fs::remove_dir_all(&d).unwrap();
 }
 
@@ -375,5 +398,6 @@ fn demo() {
     let o = tactread(&["demo", "--limit", "1", "--out", s(&d)]);
     refused(&o, &report, EXISTS);
     assert_eq!(read(&report), b"x");
+    no_temporaries(&d);
     std::fs::remove_dir_all(&d).unwrap();
 }
