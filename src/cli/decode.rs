@@ -105,10 +105,15 @@ pub fn run(args: Args) -> Result<()> {
     if let Some(lex) = &lexicon {
         decoder = decoder.with_lexicon(lex, weights)?;
     }
-    if args.lang.is_some() && lang != model.lang {
+    let known = &model.training.languages;
+    if args.lang.is_some() && lang != model.lang && !known.contains(&lang) {
         eprintln!(
             "note: the model was trained on `{}` text; reading it as `{lang}`",
-            model.lang
+            if known.is_empty() {
+                model.lang.clone()
+            } else {
+                known.join(", ")
+            }
         );
     }
 
