@@ -52,6 +52,10 @@ pub struct Args {
     /// reading only (default: the language's builtin lexicon).
     #[arg(long)]
     lexicon: Option<String>,
+    /// Rescoring weights (JSON from `tactread lexicon tune`; default: the
+    /// built-in defaults).
+    #[arg(long)]
+    weights: Option<PathBuf>,
     /// Write the metrics file (JSON) here.
     #[arg(long)]
     json: Option<PathBuf>,
@@ -200,6 +204,9 @@ pub fn run(args: Args) -> Result<()> {
     if let Some(lexicon) = args.lexicon.as_deref().filter(|l| *l != "none") {
         guard.input(lexicon);
     }
+    if let Some(w) = &args.weights {
+        guard.input(w);
+    }
     guard.inputs(items.iter().map(|i| &i.path));
     check_outputs(&args, &mut guard)?;
     let model = super::load_model(&args.model)?;
@@ -229,11 +236,15 @@ pub fn run(args: Args) -> Result<()> {
         n_best: 3.min(args.beam.max(1)),
         ..BeamParams::default()
     };
+    let weights = match &args.weights {
+        Some(p) => super::decode::load_weights(p)?,
+        None => RescoreWeights::default(),
+    };
     let mut decoders: BTreeMap<&str, (&CodeTable, Decoder<'_, CodeTable>)> = BTreeMap::new();
     for (lang, (table, lexicon)) in &packs {
         let mut decoder = Decoder::new(table, beam.clone())?;
         if let Some(lex) = lexicon {
-            decoder = decoder.with_lexicon(lex, RescoreWeights::default())?;
+            decoder = decoder.with_lexicon(lex, weights.clone())?;
         }
         decoders.insert(lang.as_str(), (table, decoder));
     }
