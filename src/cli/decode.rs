@@ -29,7 +29,7 @@ Examples:\n  tactread decode default scan.json\n  tactread decode default scans/
 )]
 pub struct Args {
     /// The model file (from `tactread train`), or `default` for the
-    /// embedded default model (hex24 fingertip, English; a file called
+    /// embedded default model (hex24 fingertip; en, de, fr, es; a file called
     /// `default` is read as `./default`).
     model: PathBuf,
     /// Recording manifests, or folders of them, to read.

@@ -78,7 +78,11 @@ pub fn run(args: Args) -> Result<()> {
         "tactread demo: reading {} test recordings of {} with the default model ({})",
         entries.len(),
         data.display(),
-        model.lang
+        if model.training.languages.is_empty() {
+            model.lang.clone()
+        } else {
+            model.training.languages.join(", ")
+        }
     );
 
     let mut evals = Vec::new();

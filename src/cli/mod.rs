@@ -18,7 +18,7 @@ mod show;
 mod simulate;
 mod train;
 
-/// The default model (hex24 fingertip, English), trained by
+/// The default model (hex24 fingertip; en, de, fr, es), trained by
 /// `scripts/train_default_model.sh`; see docs/default-model.md.
 pub(crate) const DEFAULT_MODEL: &str = include_str!("../../models/default.json");
 

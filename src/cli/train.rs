@@ -5,8 +5,10 @@
 use clap::{Args as ClapArgs, ValueEnum};
 use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
+use std::collections::BTreeMap;
 use std::ops::ControlFlow;
 use std::path::PathBuf;
+use std::sync::Arc;
 use std::time::Instant;
 use tactread::braille::CodeTable;
 use tactread::prep::Grid;
@@ -98,7 +100,14 @@ pub struct Args {
     force: bool,
 }
 
-fn load_split(ds: &Dataset, split: Split) -> Result<Vec<Example>> {
+/// The examples of one split; recordings in another language than the
+/// run's `primary` one carry their own code table.
+fn load_split(
+    ds: &Dataset,
+    split: Split,
+    primary: &str,
+    tables: &BTreeMap<String, Arc<CodeTable>>,
+) -> Result<Vec<Example>> {
     let entries: Vec<_> = ds.split(split).collect();
     entries
         .par_iter()
@@ -107,9 +116,39 @@ fn load_split(ds: &Dataset, split: Split) -> Result<Vec<Example>> {
                 name: ds.manifest_path(e).display().to_string(),
                 recording: ds.load(e)?,
                 text: e.text.clone(),
+                table: if e.lang == primary {
+                    None
+                } else {
+                    tables.get(&e.lang).cloned()
+                },
             })
         })
         .collect()
+}
+
+/// The language packs of a dataset and its primary language: the most
+/// common one among the training recordings (ties: the first by name).
+fn languages(ds: &Dataset) -> Result<(String, BTreeMap<String, Arc<CodeTable>>)> {
+    let mut counts: BTreeMap<String, usize> = BTreeMap::new();
+    for e in ds.entries() {
+        let n = counts.entry(e.lang.clone()).or_default();
+        if e.split == Split::Train {
+            *n += 1;
+        }
+    }
+    let mut tables = BTreeMap::new();
+    for lang in counts.keys() {
+        tables.insert(lang.clone(), Arc::new(CodeTable::builtin(lang)?));
+    }
+    let primary = counts
+        .iter()
+        .fold(None::<(&String, usize)>, |best, (l, &n)| match best {
+            Some((_, m)) if m >= n => best,
+            _ => Some((l, n)),
+        })
+        .map(|(l, _)| l.clone())
+        .ok_or_else(|| Error::config("data", "the dataset lists no recordings"))?;
+    Ok((primary, tables))
 }
 
 /// Run `tactread train`.
@@ -164,21 +203,9 @@ pub fn run(args: Args) -> Result<()> {
         });
     }
     let ds = Dataset::open(&args.data)?;
-    let mut langs: Vec<&str> = ds.entries().iter().map(|e| e.lang.as_str()).collect();
-    langs.sort_unstable();
-    langs.dedup();
-    let lang = match langs.as_slice() {
-        [one] => one.to_string(),
-        _ => {
-            return Err(Error::Mismatch {
-                what: format!("languages of {}", args.data.display()),
-                expected: "one language pack".into(),
-                got: langs.join(", "),
-                hint: "train one model per language: make a dataset per language".into(),
-            })
-        }
-    };
+    let (lang, tables) = languages(&ds)?;
     let table = CodeTable::builtin(&lang)?;
+    let lang_list = tables.keys().cloned().collect::<Vec<_>>().join(", ");
     let t_load = Instant::now();
     let (train_set, val, test) = rayon::ThreadPoolBuilder::new()
         .num_threads(args.threads)
@@ -186,13 +213,13 @@ pub fn run(args: Args) -> Result<()> {
         .map_err(|e| Error::config("threads", e.to_string()))?
         .install(|| -> Result<_> {
             Ok((
-                load_split(&ds, Split::Train)?,
-                load_split(&ds, Split::Validation)?,
-                load_split(&ds, Split::Test)?,
+                load_split(&ds, Split::Train, &lang, &tables)?,
+                load_split(&ds, Split::Validation, &lang, &tables)?,
+                load_split(&ds, Split::Test, &lang, &tables)?,
             ))
         })?;
     eprintln!(
-        "{}: {} train, {} validation, {} test recordings ({lang}), loaded in {:.1} s",
+        "{}: {} train, {} validation, {} test recordings ({lang_list}), loaded in {:.1} s",
         args.data.display(),
         train_set.len(),
         val.len(),

@@ -79,6 +79,10 @@ pub struct TrainingSummary {
     pub seed: u64,
     /// Threads (also the number of gradient shards).
     pub threads: usize,
+    /// Languages of the training texts when there were several (the
+    /// model's `lang` is then the most common one); empty for one language.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub languages: Vec<String>,
     /// The other options, as given.
     #[serde(default)]
     pub options: serde_json::Map<String, serde_json::Value>,

@@ -30,6 +30,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::ops::ControlFlow;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 use std::time::Instant;
 
 /// Training options. Defaults in brackets.
@@ -139,6 +140,10 @@ pub struct Example {
     pub recording: crate::recording::Recording,
     /// Ground-truth text.
     pub text: String,
+    /// The code table of this recording's language when it is not the
+    /// run's own (a dataset in several languages); `None` writes the text
+    /// with the table given to [`train`] / [`evaluate`].
+    pub table: Option<Arc<CodeTable>>,
 }
 
 /// A preprocessed example.
@@ -147,6 +152,7 @@ struct Prepared {
     cells: Vec<usize>,
     reference: Vec<Cell>,
     text: String,
+    table: Option<Arc<CodeTable>>,
 }
 
 /// Validation figures of one epoch.
@@ -536,6 +542,18 @@ fn run(
     }
 
     let lang = table.lang().to_string();
+    let mut languages: Vec<String> = std::iter::once(lang.clone())
+        .chain(
+            train
+                .iter()
+                .filter_map(|e| e.table.as_ref().map(|t| t.lang().to_string())),
+        )
+        .collect();
+    languages.sort_unstable();
+    languages.dedup();
+    if languages.len() < 2 {
+        languages.clear();
+    }
     let sensor = SensorSummary {
         taxels: prep.taxels,
         name: train[0].recording.manifest.sensor.name.clone(),
@@ -552,6 +570,7 @@ fn run(
         seconds: secs,
         seed: config.seed,
         threads: config.threads,
+        languages: languages.clone(),
         options: match serde_json::to_value(config) {
             Ok(serde_json::Value::Object(m)) => m,
             _ => Default::default(),
@@ -665,6 +684,7 @@ fn run(
 
 /// Preprocesses one example and writes its text as cells.
 fn prepare(prep: &Prep, table: &CodeTable, e: &Example) -> Result<Prepared> {
+    let table = e.table.as_deref().unwrap_or(table);
     let reference = table.encode(&e.text).map_err(|err| {
         Error::input(
             crate::Location::file(&e.name).field("text"),
@@ -690,6 +710,7 @@ fn prepare(prep: &Prep, table: &CodeTable, e: &Example) -> Result<Prepared> {
         cells,
         reference,
         text: e.text.clone(),
+        table: e.table.clone(),
     })
 }
 
@@ -733,6 +754,7 @@ fn validate(net: &Network, val: &[Prepared], table: &CodeTable) -> Result<Valida
     for ((hyp, l, n), p) in per.iter().zip(val) {
         loss += l;
         n_cells += n;
+        let table = p.table.as_deref().unwrap_or(table);
         let (right, total, c) = score(&p.reference, hyp, &p.text, table);
         dots.0 += right;
         dots.1 += total;
@@ -795,6 +817,7 @@ mod tests {
             name: format!("{text}.json"),
             recording,
             text: text.into(),
+            table: None,
         }
     }
 
