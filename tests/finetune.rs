@@ -230,6 +230,8 @@ fn cli_train_init_fine_tunes_and_refuses_what_cannot_agree() {
         "{}",
         err(&o)
     );
+    // Refused before any data is loaded.
+    assert!(!err(&o).contains("loaded in"), "{}", err(&o));
     for bad in [
         &["--init", "default", "--step-mm", "0.4"][..],
         &["--refit-prep"][..],

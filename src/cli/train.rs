@@ -195,6 +195,14 @@ pub fn run(args: Args) -> Result<()> {
         },
     };
     config.check()?;
+    if let Some((m, name)) = &init {
+        train::FineTune {
+            model: m,
+            name,
+            refit_prep: args.refit_prep,
+        }
+        .check(&config)?;
+    }
     if args.out.exists() && !args.force && !args.resume {
         return Err(Error::Output {
             path: args.out.clone(),
