@@ -25,7 +25,7 @@ A folder holding an index.json is a dataset: all its recordings, in index order;
 *.json manifests directly inside it, sorted by name (subfolders are not entered). A list file has one \
 path per line, relative to the list file's folder; blank lines and lines starting with # are skipped.\n\n\
 A recording that cannot be read does not stop the others: its error goes to standard error (and to its \
-line of JSON output), the rest are decoded, and the exit code is 1 at the end.\n\n\
+line of JSON output), the rest are decoded, and the exit code is 1 at the end (a single recording fails with its own error and exit code).\n\n\
 Examples:\n  tactread decode default scan.json\n  tactread decode default scans/ --format jsonl --jobs 2 > read.jsonl"
 )]
 pub struct Args {
