@@ -373,7 +373,10 @@ fn to_json_line(name: &str, lang: &str, b: &BatchRead) -> Value {
 
 /// Rescoring weights from a JSON file written by `tactread lexicon tune`.
 pub(crate) fn load_weights(path: &Path) -> Result<RescoreWeights> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
+    let text = tactread::fsutil::read_utf8(
+        path,
+        "a weights file is UTF-8 JSON written by `tactread lexicon tune`: write it again",
+    )?;
     let w: RescoreWeights = serde_json::from_str(&text).map_err(|e| {
         Error::input(
             tactread::Location::file(path).line(e.line()),
