@@ -196,6 +196,14 @@ pub fn run(args: Args) -> Result<()> {
         },
     };
     config.check()?;
+    if let Some((m, name)) = &init {
+        train::FineTune {
+            model: m,
+            name,
+            refit_prep: args.refit_prep,
+        }
+        .check(&config)?;
+    }
     let ckpt = train::checkpoint_path(&args.out);
     if args.resume && !ckpt.exists() {
         return Err(Error::config(

@@ -292,6 +292,46 @@ pub struct FineTune<'a> {
     pub refit_prep: bool,
 }
 
+impl FineTune<'_> {
+    /// Checks that `config`'s architecture options (`hidden`, `layers`,
+    /// `bidirectional`) agree with the model's network: an
+    /// [`Error::Config`] naming the option otherwise. [`fine_tune`] runs it
+    /// first; call it yourself to refuse options before loading any data.
+    pub fn check(&self, config: &TrainConfig) -> Result<()> {
+        let from = self;
+        let have = from.model.network.config();
+        for (name, want, got) in [
+            ("hidden", config.hidden, have.hidden),
+            ("layers", config.layers, have.layers),
+        ] {
+            if want != got {
+                return Err(Error::config(
+                    name,
+                    format!(
+                        "is {want} but the model being fine-tuned ({}) has {got}: leave the option \
+                         out, or give {got}",
+                        from.name
+                    ),
+                ));
+            }
+        }
+        if config.bidirectional != have.bidirectional {
+            let dir = |b: bool| if b { "bi" } else { "uni" };
+            return Err(Error::config(
+                "direction",
+                format!(
+                    "is {} but the model being fine-tuned ({}) is {}: leave the option out, or give {}",
+                    dir(config.bidirectional),
+                    from.name,
+                    dir(have.bidirectional),
+                    dir(have.bidirectional)
+                ),
+            ));
+        }
+        Ok(())
+    }
+}
+
 /// Fine-tuning: [`train`] started from `from.model` instead of random
 /// weights, with a fresh Adam state and the usual schedule (pass
 /// [`FINE_TUNE_LR`] or another low peak in `config.lr`). `config.hidden`,
@@ -316,35 +356,7 @@ pub fn fine_tune(
     resume: bool,
     on_event: impl FnMut(Event) -> ControlFlow<()>,
 ) -> Result<Outcome> {
-    let have = from.model.network.config();
-    for (name, want, got) in [
-        ("hidden", config.hidden, have.hidden),
-        ("layers", config.layers, have.layers),
-    ] {
-        if want != got {
-            return Err(Error::config(
-                name,
-                format!(
-                    "is {want} but the model being fine-tuned ({}) has {got}: leave the option \
-                     out, or give {got}",
-                    from.name
-                ),
-            ));
-        }
-    }
-    if config.bidirectional != have.bidirectional {
-        let dir = |b: bool| if b { "bi" } else { "uni" };
-        return Err(Error::config(
-            "direction",
-            format!(
-                "is {} but the model being fine-tuned ({}) is {}: leave the option out, or give {}",
-                dir(config.bidirectional),
-                from.name,
-                dir(have.bidirectional),
-                dir(have.bidirectional)
-            ),
-        ));
-    }
+    from.check(config)?;
     run(
         config,
         Some(from),
