@@ -53,6 +53,8 @@ mod align;
 mod code;
 mod frames;
 mod search;
+#[cfg(test)]
+mod search_reference;
 
 pub use frames::{BLANK, N_CLASSES};
 pub use search::BeamParams;
