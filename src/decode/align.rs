@@ -282,8 +282,8 @@ pub(crate) fn posteriors(frames: &Pruned, cells: &[Cell]) -> Option<(f64, Vec<Ce
                 }
                 if not_blank > 0.0 {
                     let k = g / not_blank;
-                    for (m, q) in post.q.iter_mut().enumerate() {
-                        *q += k * frames.p(t, m as u8);
+                    for (q, &p) in post.q.iter_mut().zip(frames.row(t)) {
+                        *q += k * p;
                     }
                 }
             }

@@ -113,6 +113,7 @@ impl DeleteIndex {
     /// Sort the entries: the index is ready.
     pub(crate) fn finish(mut self) -> DeleteIndex {
         self.entries.sort_unstable();
+        self.entries.shrink_to_fit();
         self
     }
 
