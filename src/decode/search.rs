@@ -231,11 +231,11 @@ impl<T: Eq + Clone> Trie<T> {
         }
     }
     /// The child of `parent` with `label`, made if new.
-    fn child(&mut self, parent: u32, label: &T) -> u32 {
+    fn child(&mut self, parent: u32, label: T) -> u32 {
         let mut k = self.nodes[parent as usize].first_child;
         while k != NIL {
             let node = &self.nodes[k as usize];
-            if node.label == *label {
+            if node.label == label {
                 return k;
             }
             k = node.next_sibling;
@@ -244,7 +244,7 @@ impl<T: Eq + Clone> Trie<T> {
         let next_sibling = self.nodes[parent as usize].first_child;
         self.nodes.push(TrieNode {
             parent,
-            label: label.clone(),
+            label,
             first_child: NIL,
             next_sibling,
         });
@@ -474,7 +474,7 @@ pub(crate) fn search<R: CodeReader>(
             if h.cnode != PENDING {
                 continue;
             }
-            h.cnode = cells.child(h.from, &h.last);
+            h.cnode = cells.child(h.from, h.last);
             let node = h.cnode as usize;
             if after.len() <= node {
                 after.resize_with(node + 1, || None);
@@ -488,7 +488,7 @@ pub(crate) fn search<R: CodeReader>(
                 let tnode = if piece.is_empty() {
                     *ptext
                 } else {
-                    texts.child(*ptext, &piece)
+                    texts.child(*ptext, piece)
                 };
                 after[node] = Some((tnode, r));
             }

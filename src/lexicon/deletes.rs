@@ -26,9 +26,12 @@
 pub(crate) const MAX_EDITS: u32 = 2;
 /// Longest word indexed, in characters.
 pub(crate) const MAX_CHARS: usize = 16;
+/// Word ids take the low 30 bits of an entry.
+const ID_BITS: u32 = 30;
 
-/// The index: `(hash << 32) | word id` for every distinct deletion string of
-/// every word, sorted; and the words themselves.
+/// The index: `(hash << 32) | (deleted << 30) | word id` for every distinct
+/// deletion string of every word (`deleted`: how many characters it lacks,
+/// 0..=2), sorted; and the words themselves.
 pub(crate) struct DeleteIndex {
     entries: Vec<u64>,
     /// All indexed words, concatenated; word `i` is `text[ends[i-1]..ends[i]]`.
@@ -48,30 +51,38 @@ fn hash_chars(chars: impl Iterator<Item = char>) -> u32 {
     (h ^ (h >> 32)) as u32
 }
 
-/// Hashes of the distinct strings made by deleting at most `depth` (0..=2)
-/// characters of `cs`, sorted, appended to `out` (cleared first).
-fn deletion_hashes(cs: &[char], depth: u32, out: &mut Vec<u32>) {
+/// `(hash, characters deleted)` of the distinct strings made by deleting at
+/// most `depth` (0..=2) characters of `cs`, sorted, appended to `out`
+/// (cleared first). Strings made by different numbers of deletions differ
+/// in length, so a string appears once.
+fn deletion_hashes(cs: &[char], depth: u32, out: &mut Vec<(u32, u8)>) {
     out.clear();
     let n = cs.len();
-    out.push(hash_chars(cs.iter().copied()));
+    out.push((hash_chars(cs.iter().copied()), 0));
     if depth >= 1 {
         for i in 0..n {
-            out.push(hash_chars(
-                cs.iter()
-                    .enumerate()
-                    .filter(|&(k, _)| k != i)
-                    .map(|(_, &c)| c),
+            out.push((
+                hash_chars(
+                    cs.iter()
+                        .enumerate()
+                        .filter(|&(k, _)| k != i)
+                        .map(|(_, &c)| c),
+                ),
+                1,
             ));
         }
     }
     if depth >= 2 {
         for i in 0..n {
             for j in i + 1..n {
-                out.push(hash_chars(
-                    cs.iter()
-                        .enumerate()
-                        .filter(|&(k, _)| k != i && k != j)
-                        .map(|(_, &c)| c),
+                out.push((
+                    hash_chars(
+                        cs.iter()
+                            .enumerate()
+                            .filter(|&(k, _)| k != i && k != j)
+                            .map(|(_, &c)| c),
+                    ),
+                    2,
                 ));
             }
         }
@@ -94,11 +105,16 @@ impl DeleteIndex {
     /// Index `word` with its `count` to depth [`MAX_EDITS`] (skipped when
     /// longer than [`MAX_CHARS`]). Call [`DeleteIndex::finish`] after the
     /// last word.
-    pub(crate) fn add(&mut self, word: &str, count: u64, scratch: &mut (Vec<char>, Vec<u32>)) {
+    pub(crate) fn add(
+        &mut self,
+        word: &str,
+        count: u64,
+        scratch: &mut (Vec<char>, Vec<(u32, u8)>),
+    ) {
         let (cs, hashes) = scratch;
         cs.clear();
         cs.extend(word.chars());
-        if cs.len() > MAX_CHARS {
+        if cs.len() > MAX_CHARS || self.counts.len() >= 1 << ID_BITS {
             return;
         }
         let id = self.counts.len() as u64;
@@ -106,8 +122,11 @@ impl DeleteIndex {
         self.ends.push(self.text.len() as u32);
         self.counts.push(count);
         deletion_hashes(cs, MAX_EDITS, hashes);
-        self.entries
-            .extend(hashes.iter().map(|&h| ((h as u64) << 32) | id));
+        self.entries.extend(
+            hashes
+                .iter()
+                .map(|&(h, deleted)| ((h as u64) << 32) | ((deleted as u64) << ID_BITS) | id),
+        );
     }
 
     /// Sort the entries: the index is ready.
@@ -137,15 +156,20 @@ impl DeleteIndex {
         }
         let mut hashes = Vec::new();
         deletion_hashes(&cs, max_edits, &mut hashes);
+        // A word within `max_edits` reaches a common string with at most
+        // `max_edits` deletions of its own: entries of deeper deletions are
+        // not taken.
         let mut ids: Vec<u32> = Vec::new();
-        for &h in &hashes {
+        let id_mask = (1u64 << ID_BITS) - 1;
+        for &(h, _) in &hashes {
             let key = (h as u64) << 32;
             let from = self.entries.partition_point(|&e| e < key);
+            // Within a hash, entries sort by deletions, then word.
             for &e in &self.entries[from..] {
-                if e >> 32 != h as u64 {
+                if e >> 32 != h as u64 || (e >> ID_BITS) & 3 > max_edits as u64 {
                     break;
                 }
-                ids.push(e as u32);
+                ids.push((e & id_mask) as u32);
             }
         }
         ids.sort_unstable();
@@ -154,6 +178,10 @@ impl DeleteIndex {
         for id in ids {
             let id = id as usize;
             let word = self.word(id);
+            let len = word.chars().count();
+            if len.abs_diff(cs.len()) > max_edits as usize {
+                continue;
+            }
             let edits = strsim::levenshtein(query, word);
             if edits <= max_edits as usize {
                 out.push((word, self.counts[id], edits));
