@@ -60,19 +60,28 @@ pub(crate) fn span_log_likelihood(frames: &Pruned, from: usize, to: usize, cells
     }
     alpha.iter_mut().for_each(|a| *a /= c);
     log_scale += c.ln();
+    let lab: Vec<u8> = (0..n_s)
+        .map(|s| label(cells, s).unwrap_or(BLANK_LABEL))
+        .collect();
+    let skip: Vec<bool> = (0..n_s).map(|s| may_skip(cells, s)).collect();
     for t in from + 1..to {
         // Only positions that can still reach the end, and that can have
         // been reached by now, matter; the plain loop is simple and cheap
         // for the word-sized sequences it serves.
+        let (row, blank) = (frames.row(t), frames.blank[t]);
         for s in 0..n_s {
             let mut a = alpha[s];
             if s >= 1 {
                 a += alpha[s - 1];
             }
-            if may_skip(cells, s) {
+            if skip[s] {
                 a += alpha[s - 2];
             }
-            next[s] = a * y(frames, t, label(cells, s));
+            let y = match lab[s] {
+                BLANK_LABEL => blank,
+                m => row[m as usize & 63],
+            };
+            next[s] = a * y;
         }
         c = next.iter().sum();
         if c <= 0.0 {
@@ -414,6 +423,25 @@ mod tests {
             }
             for seq in [truth.clone(), other] {
                 let cells: Vec<Cell> = seq.iter().map(|&m| Cell::from_mask(m)).collect();
+                let n = f.n_frames();
+                for j in 0..4 {
+                    // The whole recording first (finite for the true cells),
+                    // then random spans and runs of cells.
+                    let (from, to, part) = if j == 0 {
+                        (0, n, &cells[..])
+                    } else {
+                        let from = rng.gen_range(0..n);
+                        let k = rng.gen_range(0..=cells.len());
+                        (
+                            from,
+                            rng.gen_range(from..=n),
+                            &cells[rng.gen_range(0..=k)..k],
+                        )
+                    };
+                    let fast = span_log_likelihood(&f, from, to, part);
+                    let plain = reference::span_log_likelihood_reference(&f, from, to, part);
+                    assert_eq!(fast.to_bits(), plain.to_bits(), "case {case} span");
+                }
                 let fast = posteriors(&f, &cells);
                 let plain = reference::posteriors_reference(&f, &cells);
                 match (fast, plain) {
@@ -450,11 +478,71 @@ mod tests {
     }
 }
 
-/// The forward-backward pass as first written (one label lookup per term),
-/// kept as the reference that [`posteriors`] must reproduce bit for bit.
+/// The forward pass over a span and the forward-backward pass as first
+/// written (one label lookup per term), kept as the references that
+/// [`span_log_likelihood`] and [`posteriors`] must reproduce bit for bit.
 #[cfg(test)]
 mod reference {
     use super::*;
+
+    pub(crate) fn span_log_likelihood_reference(
+        frames: &Pruned,
+        from: usize,
+        to: usize,
+        cells: &[Cell],
+    ) -> f64 {
+        let n_s = 2 * cells.len() + 1;
+        if to <= from {
+            return if cells.is_empty() {
+                0.0
+            } else {
+                f64::NEG_INFINITY
+            };
+        }
+        let mut alpha = vec![0f64; n_s];
+        let mut next = vec![0f64; n_s];
+        alpha[0] = y(frames, from, None);
+        if n_s > 1 {
+            alpha[1] = y(frames, from, label(cells, 1));
+        }
+        let mut log_scale = 0f64;
+        let mut c: f64 = alpha.iter().sum();
+        if c <= 0.0 {
+            return f64::NEG_INFINITY;
+        }
+        alpha.iter_mut().for_each(|a| *a /= c);
+        log_scale += c.ln();
+        for t in from + 1..to {
+            // Only positions that can still reach the end, and that can have
+            // been reached by now, matter; the plain loop is simple and cheap
+            // for the word-sized sequences it serves.
+            for s in 0..n_s {
+                let mut a = alpha[s];
+                if s >= 1 {
+                    a += alpha[s - 1];
+                }
+                if may_skip(cells, s) {
+                    a += alpha[s - 2];
+                }
+                next[s] = a * y(frames, t, label(cells, s));
+            }
+            c = next.iter().sum();
+            if c <= 0.0 {
+                return f64::NEG_INFINITY;
+            }
+            let inv = 1.0 / c;
+            for (a, n) in alpha.iter_mut().zip(&next) {
+                *a = n * inv;
+            }
+            log_scale += c.ln();
+        }
+        let end = alpha[n_s - 1] + if n_s >= 2 { alpha[n_s - 2] } else { 0.0 };
+        if end <= 0.0 {
+            f64::NEG_INFINITY
+        } else {
+            end.ln() + log_scale
+        }
+    }
 
     pub(crate) fn posteriors_reference(
         frames: &Pruned,

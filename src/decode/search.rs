@@ -203,6 +203,9 @@ const ROOT: u32 = 0;
 const PENDING: u32 = u32::MAX;
 /// End of a child or sibling list.
 const NIL: u32 = u32::MAX;
+/// Up to this many survivors, text merging finds equal keys by a linear
+/// search instead of hashing.
+const LINEAR_MERGE: usize = 48;
 
 /// A prefix tree: node `i` has a parent and a label; node 0 is the empty
 /// prefix. Each node keeps its children as a linked list (first child,
@@ -338,6 +341,7 @@ pub(crate) fn search<R: CodeReader>(
     let mut sib: Vec<u32> = Vec::new();
     let mut member: FxMap<u32, u32> = FxMap::default();
     let mut by_key: FxMap<(u32, R::State, u8), usize> = FxMap::default();
+    let mut keys: Vec<(u32, R::State, u8)> = Vec::new();
     let mut merged: Vec<Hyp> = Vec::new();
 
     for t in 0..frames.n_frames() {
@@ -495,14 +499,24 @@ pub(crate) fn search<R: CodeReader>(
         }
         if merge {
             by_key.clear();
+            keys.clear();
             merged.clear();
+            // Few survivors: a linear search of the keys is cheaper than
+            // hashing them (same result: the first of each key collects).
+            let linear = next.len() <= LINEAR_MERGE;
             for h in &next {
                 let Some((tnode, r)) = &after[h.cnode as usize] else {
                     continue;
                 };
-                match by_key.entry((*tnode, r.state(), h.last)) {
-                    std::collections::hash_map::Entry::Occupied(e) => {
-                        let m: &mut Hyp = &mut merged[*e.get()];
+                let key = (*tnode, r.state(), h.last);
+                let at = if linear {
+                    keys.iter().position(|k| *k == key)
+                } else {
+                    by_key.get(&key).copied()
+                };
+                match at {
+                    Some(i) => {
+                        let m: &mut Hyp = &mut merged[i];
                         if h.total() > m.total() {
                             // Report the dominant cell path.
                             m.cnode = h.cnode;
@@ -510,8 +524,12 @@ pub(crate) fn search<R: CodeReader>(
                         m.pb += h.pb;
                         m.pnb += h.pnb;
                     }
-                    std::collections::hash_map::Entry::Vacant(e) => {
-                        e.insert(merged.len());
+                    None => {
+                        if linear {
+                            keys.push(key);
+                        } else {
+                            by_key.insert(key, merged.len());
+                        }
                         merged.push(*h);
                     }
                 }
