@@ -17,8 +17,9 @@ use tactread::{Error, Result};
 pub struct Args {
     /// The model file (from `tactread train`).
     model: PathBuf,
-    /// Recording manifests to read.
-    #[arg(required = true)]
+    /// Recording manifests to read (with --stream: one, or none to read
+    /// CSV frame rows from stdin).
+    #[arg(required_unless_present = "stream")]
     recordings: Vec<PathBuf>,
     /// Language pack: picks the code table and the builtin lexicon together
     /// (default: the model's training language).
@@ -42,6 +43,14 @@ pub struct Args {
     /// alternatives, per-cell dot probabilities and a confidence.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     format: Format,
+    /// Stream: read frames as they arrive and print each word as soon as
+    /// it is final (unidirectional models; JSON output is one object per
+    /// word and line).
+    #[arg(long)]
+    stream: bool,
+    /// With --stream: show the running partial reading on stderr.
+    #[arg(long, requires = "stream")]
+    partial: bool,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -57,6 +66,18 @@ pub(crate) const CAUTION: &str =
 
 /// Run `tactread decode`.
 pub fn run(args: Args) -> Result<()> {
+    if args.stream {
+        return super::decode_stream::run(super::decode_stream::Options {
+            json: args.format == Format::Json,
+            model: args.model,
+            recordings: args.recordings,
+            lang: args.lang,
+            beam: args.beam,
+            lexicon: args.lexicon,
+            weights: args.weights,
+            partial: args.partial,
+        });
+    }
     let model = Model::load(&args.model)?;
     let lang = args.lang.clone().unwrap_or_else(|| model.lang.clone());
     let table = CodeTable::builtin(&lang)?;
