@@ -163,14 +163,17 @@ impl<'m, 'd, 'a, C: BrailleCode> StreamReader<'m, 'd, 'a, C> {
 
 /// Stream the recording at `path` (manifest, or frames file beside its
 /// manifest) through a [`StreamReader`] in chunks of bounded size, calling
-/// `on_word` with every word as soon as it is final. Memory does not grow
-/// with the recording's length.
+/// `on_word` with every word as soon as it is final, and `on_partial` (when
+/// given) with the running partial reading after every raw frame that
+/// produced network frames. Memory does not grow with the recording's
+/// length.
 pub fn read_recording_streamed<C: BrailleCode>(
     model: &Model,
     decoder: &Decoder<'_, C>,
     path: &Path,
     params: StreamParams,
     mut on_word: impl FnMut(&StreamWord) -> Result<()>,
+    mut on_partial: Option<&mut dyn FnMut(String)>,
 ) -> Result<()> {
     let mut stream = RecordingStream::open(path)?;
     let name = stream.manifest_path().display().to_string();
@@ -194,7 +197,11 @@ pub fn read_recording_streamed<C: BrailleCode>(
             let values = row.as_slice().ok_or_else(|| {
                 Error::config("frames", "internal error: a frame is not contiguous")
             })?;
-            reader.push(coord, values, &mut words)?;
+            if reader.push(coord, values, &mut words)? > 0 {
+                if let Some(f) = on_partial.as_mut() {
+                    f(reader.partial());
+                }
+            }
             for w in words.drain(..) {
                 on_word(&w)?;
             }

@@ -33,8 +33,6 @@ pub(crate) struct Options {
 /// Where words go: stdout, flushed after every word.
 struct Printer {
     json: bool,
-    partial: bool,
-    last_partial: String,
     /// Standard output was closed (e.g. `| head`): stop printing quietly.
     closed: bool,
 }
@@ -71,12 +69,13 @@ impl Printer {
             Err(e) => Err(Error::io("cannot write", "<stdout>", e)),
         }
     }
+}
 
-    fn partial(&mut self, text: String) {
-        if self.partial && text != self.last_partial {
-            eprintln!("partial: {text}");
-            self.last_partial = text;
-        }
+/// Show the running partial reading on stderr when it changed.
+fn show_partial(last: &mut String, text: String) {
+    if text != *last {
+        eprintln!("partial: {text}");
+        *last = text;
     }
 }
 
@@ -111,15 +110,26 @@ pub(crate) fn run(o: Options) -> Result<()> {
     let params = StreamParams::default();
     let mut printer = Printer {
         json: o.json,
-        partial: o.partial,
-        last_partial: String::new(),
         closed: false,
     };
+    let mut last_partial = String::new();
     if !o.json {
         eprintln!("{CAUTION}");
     }
     if let Some(path) = o.recordings.first() {
-        return read_recording_streamed(&model, &decoder, path, params, |w| printer.word(w));
+        let mut partials = |text: String| {
+            if o.partial {
+                show_partial(&mut last_partial, text)
+            }
+        };
+        return read_recording_streamed(
+            &model,
+            &decoder,
+            path,
+            params,
+            |w| printer.word(w),
+            Some(&mut partials),
+        );
     }
 
     // CSV rows on stdin: the header names the columns as in a frames file.
@@ -142,7 +152,7 @@ pub(crate) fn run(o: Options) -> Result<()> {
             .coordinate(frame.time_s, frame.position_mm)
             .unwrap_or(f64::NAN);
         if reader.push(coord, &frame.values, &mut words)? > 0 && o.partial {
-            printer.partial(reader.partial());
+            show_partial(&mut last_partial, reader.partial());
         }
         for w in words.drain(..) {
             printer.word(&w)?;
