@@ -35,7 +35,9 @@
 //! # Ok::<(), tactread::Error>(())
 //! ```
 
-use crate::decode::{BrailleCode, Decoder, StreamParams, StreamWord, WordStream};
+use crate::decode::{
+    BrailleCode, CommitJob, Decoder, StreamParams, StreamWord, WordFinisher, WordStream,
+};
 use crate::net::{Model, Network, StreamState, N_CLASSES};
 use crate::prep::{Grid, Resampler};
 use crate::recording::RecordingStream;
@@ -140,6 +142,39 @@ impl<'m, 'd, 'a, C: BrailleCode> StreamReader<'m, 'd, 'a, C> {
         Ok(n)
     }
 
+    /// [`Self::push`] without the rescoring: the commits are queued as
+    /// jobs for a [`WordFinisher`] (see [`Self::take_jobs`]), which
+    /// [`stream_frames`] runs on a second thread so that a commit never
+    /// holds up the next frame.
+    pub fn step(&mut self, coord: f64, frame: &[f32]) -> Result<usize> {
+        if frame.len() != self.taxels {
+            return Err(Error::Mismatch {
+                what: "taxels per frame".into(),
+                expected: self.taxels.to_string(),
+                got: frame.len().to_string(),
+                hint: "use a model trained for this sensor's taxel count".into(),
+            });
+        }
+        self.samples.clear();
+        let n = self.resampler.push(coord, frame, &mut self.samples);
+        for sample in self.samples.chunks_exact(self.taxels) {
+            let z = self.network.step(&mut self.state, sample)?;
+            crate::net::pattern_log_probs_row(&z, &mut self.log_probs);
+            self.words.step(&self.log_probs)?;
+        }
+        Ok(n)
+    }
+
+    /// The commits [`Self::step`] made since the last call, in order.
+    pub fn take_jobs(&mut self) -> std::vec::Drain<'_, CommitJob> {
+        self.words.take_jobs()
+    }
+
+    /// End of the stream for [`Self::step`] users: the last jobs, in order.
+    pub fn finish_jobs(self) -> Vec<CommitJob> {
+        self.words.finish_jobs()
+    }
+
     /// The running partial reading since the last committed word.
     pub fn partial(&self) -> String {
         self.words.partial()
@@ -161,54 +196,121 @@ impl<'m, 'd, 'a, C: BrailleCode> StreamReader<'m, 'd, 'a, C> {
     }
 }
 
+/// Read `frames` (`(coordinate, [taxels])` pairs, see
+/// [`StreamReader::coordinate`]) with the search on the calling thread and
+/// the commits' rescoring on a second thread, which calls `on_word` with
+/// every word as soon as it is final. `on_partial`, when given, gets the
+/// running partial reading (on the calling thread) after every frame that
+/// produced network frames. On an error in `frames`, the words committed
+/// before it are still delivered, then the error is returned.
+pub fn stream_frames<C, I, F>(
+    model: &Model,
+    decoder: &Decoder<'_, C>,
+    params: StreamParams,
+    frames: I,
+    mut on_word: F,
+    mut on_partial: Option<&mut dyn FnMut(String)>,
+) -> Result<()>
+where
+    C: BrailleCode + Sync,
+    for<'x> C::Reader<'x>: Send,
+    I: Iterator<Item = Result<(f64, Vec<f32>)>>,
+    F: FnMut(&StreamWord) -> Result<()> + Send,
+{
+    let mut reader = StreamReader::new(model, decoder, params)?;
+    std::thread::scope(|scope| {
+        let (tx, rx) = std::sync::mpsc::channel::<CommitJob>();
+        let worker = scope.spawn(move || -> Result<()> {
+            let mut finisher = WordFinisher::new(decoder);
+            let mut words = Vec::new();
+            for job in rx {
+                finisher.run(job, &mut words);
+                for w in words.drain(..) {
+                    on_word(&w)?;
+                }
+            }
+            Ok(())
+        });
+        let read = || -> Result<()> {
+            for item in frames {
+                let (coord, values) = item?;
+                let n = reader.step(coord, &values)?;
+                for job in reader.take_jobs() {
+                    // A closed channel means the worker stopped on an error,
+                    // which its join below reports.
+                    if tx.send(job).is_err() {
+                        return Ok(());
+                    }
+                }
+                if n > 0 {
+                    if let Some(f) = on_partial.as_mut() {
+                        f(reader.partial());
+                    }
+                }
+            }
+            for job in reader.finish_jobs() {
+                if tx.send(job).is_err() {
+                    break;
+                }
+            }
+            Ok(())
+        };
+        let result = read();
+        drop(tx);
+        let worked = worker
+            .join()
+            .unwrap_or_else(|_| Err(Error::config("stream", "the rescoring thread failed")));
+        result.and(worked)
+    })
+}
+
 /// Stream the recording at `path` (manifest, or frames file beside its
-/// manifest) through a [`StreamReader`] in chunks of bounded size, calling
-/// `on_word` with every word as soon as it is final, and `on_partial` (when
-/// given) with the running partial reading after every raw frame that
-/// produced network frames. Memory does not grow with the recording's
-/// length.
-pub fn read_recording_streamed<C: BrailleCode>(
+/// manifest) through [`stream_frames`] in chunks of bounded size. Memory
+/// does not grow with the recording's length.
+pub fn read_recording_streamed<C, F>(
     model: &Model,
     decoder: &Decoder<'_, C>,
     path: &Path,
     params: StreamParams,
-    mut on_word: impl FnMut(&StreamWord) -> Result<()>,
-    mut on_partial: Option<&mut dyn FnMut(String)>,
-) -> Result<()> {
+    on_word: F,
+    on_partial: Option<&mut dyn FnMut(String)>,
+) -> Result<()>
+where
+    C: BrailleCode + Sync,
+    for<'x> C::Reader<'x>: Send,
+    F: FnMut(&StreamWord) -> Result<()> + Send,
+{
     let mut stream = RecordingStream::open(path)?;
     let name = stream.manifest_path().display().to_string();
     model.check_taxels(stream.n_taxels(), &name)?;
-    let mut reader = StreamReader::new(model, decoder, params)?;
-    if reader.needs_position() && !stream.has_position() {
+    let by_position = matches!(model.prep.grid, Grid::Position { .. });
+    if by_position && !stream.has_position() {
         return Err(no_position(&stream.frames_path().display().to_string()));
     }
-    let mut words = Vec::new();
-    while let Some(chunk) = stream.next_chunk(CHUNK_FRAMES)? {
-        for (i, row) in chunk.frames.outer_iter().enumerate() {
-            let coord = match &chunk.position_mm {
-                Some(p) => p[i],
-                None => chunk.time_s[i],
-            };
-            let coord = if reader.needs_position() {
-                coord
-            } else {
-                chunk.time_s[i]
-            };
-            let values = row.as_slice().ok_or_else(|| {
-                Error::config("frames", "internal error: a frame is not contiguous")
-            })?;
-            if reader.push(coord, values, &mut words)? > 0 {
-                if let Some(f) = on_partial.as_mut() {
-                    f(reader.partial());
-                }
-            }
-            for w in words.drain(..) {
-                on_word(&w)?;
+    let mut chunk: Option<crate::recording::FrameChunk> = None;
+    let mut i = 0;
+    let frames = std::iter::from_fn(move || loop {
+        if let Some(c) = &chunk {
+            if i < c.time_s.len() {
+                let coord = match (&c.position_mm, by_position) {
+                    (Some(p), true) => p[i],
+                    _ => c.time_s[i],
+                };
+                let values = c.frames.row(i).to_vec();
+                i += 1;
+                return Some(Ok((coord, values)));
             }
         }
-    }
-    reader.finish(&mut words)?;
-    words.iter().try_for_each(on_word)
+        match stream.next_chunk(CHUNK_FRAMES) {
+            Ok(Some(c)) => {
+                chunk = Some(c);
+                i = 0;
+            }
+            Ok(None) => return None,
+            Err(e) => return Some(Err(e)),
+        }
+    });
+    stream_frames(model, decoder, params, frames, on_word, on_partial)
 }
 
 /// The error for frames without the position a position-grid model needs.

@@ -11,7 +11,7 @@ use tactread::decode::{BeamParams, CommitRule, Decoder, StreamParams, StreamWord
 use tactread::lexicon::RescoreWeights;
 use tactread::net::Model;
 use tactread::recording::CsvFrameReader;
-use tactread::stream::{read_recording_streamed, StreamReader};
+use tactread::stream::{read_recording_streamed, stream_frames, StreamReader};
 use tactread::{Error, Result};
 
 /// What `decode --stream` needs from the `decode` options.
@@ -117,26 +117,22 @@ pub(crate) fn run(o: Options) -> Result<()> {
         eprintln!("{CAUTION}");
     }
     if let Some(path) = o.recordings.first() {
-        let mut partials = |text: String| {
-            if o.partial {
-                show_partial(&mut last_partial, text)
-            }
-        };
+        let mut partials = |text: String| show_partial(&mut last_partial, text);
         return read_recording_streamed(
             &model,
             &decoder,
             path,
             params,
             |w| printer.word(w),
-            Some(&mut partials),
+            o.partial.then_some(&mut partials as &mut dyn FnMut(String)),
         );
     }
 
     // CSV rows on stdin: the header names the columns as in a frames file.
-    let mut reader = StreamReader::new(&model, &decoder, params)?;
+    let probe = StreamReader::new(&model, &decoder, params.clone())?;
     let stdin = std::io::stdin();
-    let mut rows = CsvFrameReader::new(stdin.lock(), "<stdin>", reader.taxels())?;
-    if reader.needs_position() && !rows.has_position() {
+    let mut rows = CsvFrameReader::new(stdin.lock(), "<stdin>", probe.taxels())?;
+    if probe.needs_position() && !rows.has_position() {
         return Err(Error::Mismatch {
             what: "columns of <stdin> line 1".into(),
             expected: "a `position_mm` column (the model resamples by position)".into(),
@@ -146,18 +142,23 @@ pub(crate) fn run(o: Options) -> Result<()> {
                 .into(),
         });
     }
-    let mut words = Vec::new();
-    while let Some(frame) = rows.read_frame()? {
-        let coord = reader
-            .coordinate(frame.time_s, frame.position_mm)
-            .unwrap_or(f64::NAN);
-        if reader.push(coord, &frame.values, &mut words)? > 0 && o.partial {
-            show_partial(&mut last_partial, reader.partial());
+    let frames = std::iter::from_fn(|| match rows.read_frame() {
+        Ok(Some(f)) => {
+            let coord = probe
+                .coordinate(f.time_s, f.position_mm)
+                .unwrap_or(f64::NAN);
+            Some(Ok((coord, f.values)))
         }
-        for w in words.drain(..) {
-            printer.word(&w)?;
-        }
-    }
-    reader.finish(&mut words)?;
-    words.iter().try_for_each(|w| printer.word(w))
+        Ok(None) => None,
+        Err(e) => Some(Err(e)),
+    });
+    let mut partials = |text: String| show_partial(&mut last_partial, text);
+    stream_frames(
+        &model,
+        &decoder,
+        params,
+        frames,
+        |w| printer.word(w),
+        o.partial.then_some(&mut partials as &mut dyn FnMut(String)),
+    )
 }

@@ -59,7 +59,7 @@ mod stream;
 
 pub use frames::{BLANK, N_CLASSES};
 pub use search::BeamParams;
-pub use stream::{CommitRule, StreamParams, StreamWord, WordStream};
+pub use stream::{CommitJob, CommitRule, StreamParams, StreamWord, WordFinisher, WordStream};
 
 pub(crate) use align::span_log_likelihood;
 pub(crate) use frames::Pruned;

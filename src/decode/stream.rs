@@ -210,7 +210,16 @@ struct Search<R: CodeReader> {
     merged: Vec<Hyp>,
     floor: f64,
     dead: bool,
+    /// The node after the last commit, and its text node: ids below are
+    /// still in the trees until the next compaction.
+    root: u32,
+    root_text: u32,
 }
+
+/// The trees are rebuilt from the live hypotheses (dropping every node of
+/// committed or abandoned prefixes) when they grow past this many cell
+/// nodes: about 2 MB, reached every few hundred frames.
+const COMPACT_NODES: usize = 1 << 15;
 
 impl<R: CodeReader> Search<R> {
     fn new(reader: R, score_margin: f64) -> Self {
@@ -238,6 +247,8 @@ impl<R: CodeReader> Search<R> {
             merged: Vec::new(),
             floor: (-score_margin).exp(),
             dead: false,
+            root: ROOT,
+            root_text: ROOT,
         }
     }
 
@@ -436,14 +447,15 @@ impl<R: CodeReader> Search<R> {
     /// `margin` (a probability ratio) of the leader descends from.
     fn agreed_space(&self, margin: f64) -> Option<u32> {
         let lead = self.leader()?;
-        if self.cells[lead.cnode as usize].space_depth == 0 {
+        let root_depth = self.cells[self.root as usize].depth;
+        if self.cells[lead.cnode as usize].space_depth <= root_depth {
             return None;
         }
         let floor = lead.total() * margin;
         let mut common = lead.cnode;
         for h in self.beam.iter().filter(|h| h.total() >= floor) {
             common = self.common_ancestor(common, h.cnode);
-            if self.cells[common as usize].space_depth == 0 {
+            if self.cells[common as usize].space_depth <= root_depth {
                 return None;
             }
         }
@@ -453,12 +465,13 @@ impl<R: CodeReader> Search<R> {
     /// Rule 2: the first space node on the path to `node`.
     fn first_space(&self, mut node: u32) -> Option<u32> {
         let mut first = None;
-        while node != ROOT {
+        let root_depth = self.cells[self.root as usize].depth;
+        while node != self.root {
             let n = self.cells[node as usize];
             if n.mask == 0 {
                 first = Some(node);
             }
-            if n.space_depth == 0 {
+            if n.space_depth <= root_depth {
                 break;
             }
             node = n.parent;
@@ -469,7 +482,7 @@ impl<R: CodeReader> Search<R> {
     /// Cells from the root to `node`.
     fn path(&self, mut node: u32) -> Vec<Cell> {
         let mut out = Vec::new();
-        while node != ROOT {
+        while node != self.root && node != ROOT {
             let n = self.cells[node as usize];
             out.push(Cell::from_mask(n.mask));
             node = n.parent;
@@ -487,26 +500,37 @@ impl<R: CodeReader> Search<R> {
     }
 
     /// Make `node` the new root: drop the hypotheses that do not descend
-    /// from it (and all but the leader when `only_leader`), and rebuild the
-    /// trees from the survivors.
+    /// from it (and all but the leader when `only_leader`); rebuild the
+    /// trees from the survivors when they have grown large.
     fn rebase(&mut self, node: u32, only_leader: bool) {
         let lead = self.leader().map(|h| h.cnode);
-        let kept: Vec<Hyp> = self
-            .beam
-            .iter()
-            .copied()
-            .filter(|h| {
-                if only_leader {
-                    Some(h.cnode) == lead
-                } else {
-                    self.descends(h.cnode, node)
-                }
-            })
-            .collect();
-        let reader = self.after.get(node as usize).cloned().flatten();
-        let Some((_, reader)) = reader else {
+        let mut beam = std::mem::take(&mut self.beam);
+        beam.retain(|h| {
+            if only_leader {
+                Some(h.cnode) == lead
+            } else {
+                self.descends(h.cnode, node)
+            }
+        });
+        self.beam = beam;
+        let Some(Some((tnode, _))) = self.after.get(node as usize) else {
             // Cannot happen (every beam node's reader is computed); end the
             // search rather than read on from a wrong state.
+            self.dead = true;
+            self.beam.clear();
+            return;
+        };
+        self.root_text = *tnode;
+        self.root = node;
+        if self.cells.len() > COMPACT_NODES {
+            self.compact();
+        }
+    }
+
+    /// Rebuild the trees from the root and the live hypotheses only.
+    fn compact(&mut self) {
+        let node = self.root;
+        let Some(Some((_, reader))) = self.after.get(node as usize).cloned() else {
             self.dead = true;
             self.beam.clear();
             return;
@@ -524,6 +548,9 @@ impl<R: CodeReader> Search<R> {
         self.after = vec![Some((ROOT, reader))];
         self.texts = vec![(ROOT, String::new())];
         self.tindex.clear();
+        self.root = ROOT;
+        self.root_text = ROOT;
+        let kept = std::mem::take(&mut self.beam);
         let mut beam = Vec::with_capacity(kept.len());
         for mut h in kept {
             let mut path = Vec::new();
@@ -577,7 +604,7 @@ impl<R: CodeReader> Search<R> {
 
     fn text_of(&self, mut tnode: u32) -> String {
         let mut parts = Vec::new();
-        while tnode != ROOT {
+        while tnode != self.root_text && tnode != ROOT {
             let (p, s) = &self.texts[tnode as usize];
             parts.push(s.as_str());
             tnode = *p;
@@ -634,23 +661,6 @@ fn push_row(window: &mut Pruned, row: &[f32], p: &super::BeamParams, t: u64) -> 
     Ok(())
 }
 
-/// Drop the first `k` frames of `window`.
-fn drop_front(window: &mut Pruned, k: usize) {
-    let k = k.min(window.blank.len());
-    if k == 0 {
-        return;
-    }
-    let c0 = window.start[k];
-    window.blank.drain(..k);
-    window.all.drain(..k * 64);
-    window.class.drain(..c0);
-    window.prob.drain(..c0);
-    window.start.drain(..k);
-    for s in window.start.iter_mut() {
-        *s -= c0;
-    }
-}
-
 /// Streaming word decoder over log-probability frames: feed it the
 /// network's `[65]` rows one at a time with [`WordStream::push`], take the
 /// words it commits, and call [`WordStream::finish`] at the end. The
@@ -682,8 +692,8 @@ fn drop_front(window: &mut Pruned, k: usize) {
 /// # Ok::<(), tactread::Error>(())
 /// ```
 pub struct WordStream<'d, 'a, C: BrailleCode> {
-    decoder: &'d Decoder<'a, C>,
     params: StreamParams,
+    beam: super::BeamParams,
     search: Search<C::Reader<'a>>,
     /// Frames since the last committed space (that space's frames first).
     window: Pruned,
@@ -699,10 +709,10 @@ pub struct WordStream<'d, 'a, C: BrailleCode> {
     candidate: Option<(u32, u64)>,
     /// The frame since which the last committed space had been the leader's.
     last_since: u64,
-    /// The reader over everything emitted.
-    out_reader: C::Reader<'a>,
-    /// Text the output reader gave that belongs to no word yet.
-    pending_text: String,
+    /// Commits not yet rescored and emitted.
+    jobs: Vec<CommitJob>,
+    /// Rescores and emits the commits of [`WordStream::push`].
+    finisher: WordFinisher<'d, 'a, C>,
 }
 
 impl<'d, 'a, C: BrailleCode> std::fmt::Debug for WordStream<'d, 'a, C> {
@@ -714,6 +724,41 @@ impl<'d, 'a, C: BrailleCode> std::fmt::Debug for WordStream<'d, 'a, C> {
     }
 }
 
+/// The words of one commit with the frames they were read from, ready to be
+/// rescored and emitted by a [`WordFinisher`] (on this thread or another:
+/// see [`WordStream::step`]).
+#[derive(Debug, Clone)]
+pub struct CommitJob {
+    /// The frames of the committed cells (from the carried space on).
+    frames: Pruned,
+    /// Stream frame of `frames`' first frame.
+    start: u64,
+    /// The committed cells, the carried space first when `carry`.
+    cells: Vec<Cell>,
+    carry: bool,
+    /// Cells aligned with `frames` (the final space of a commit is not:
+    /// its frames stay for the next word).
+    aligned: usize,
+    rule: CommitRule,
+}
+
+/// Rescores committed words with the decoder's lexicon and reads them with
+/// one code reader over the whole stream (so indicators work across
+/// commits). Jobs must be run in the order they were made.
+pub struct WordFinisher<'d, 'a, C: BrailleCode> {
+    decoder: &'d Decoder<'a, C>,
+    /// The reader over everything emitted.
+    out_reader: C::Reader<'a>,
+    /// Text the output reader gave that belongs to no word yet.
+    pending_text: String,
+}
+
+impl<'d, 'a, C: BrailleCode> std::fmt::Debug for WordFinisher<'d, 'a, C> {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("WordFinisher").finish()
+    }
+}
+
 impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
     /// A stream reading with `decoder` (its code, beam settings and
     /// lexicon) and the commit settings `params`.
@@ -721,18 +766,18 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
         params.check()?;
         let code: &'a C = decoder.code;
         Ok(WordStream {
-            decoder,
-            agree_ratio: (-params.agree_margin).exp(),
-            candidate: None,
-            last_since: 0,
-            params,
+            beam: decoder.beam.clone(),
             search: Search::new(code.reader(), decoder.beam.score_margin),
             window: empty_window(),
             window_start: 0,
             now: 0,
             carry: false,
-            out_reader: code.reader(),
-            pending_text: String::new(),
+            agree_ratio: (-params.agree_margin).exp(),
+            candidate: None,
+            last_since: 0,
+            jobs: Vec::new(),
+            finisher: WordFinisher::new(decoder),
+            params,
         })
     }
 
@@ -750,15 +795,26 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
     /// Push one frame of natural-log probabilities, `[65]` (64 patterns
     /// then the blank), appending the words it makes final to `out`.
     pub fn push(&mut self, log_probs: &[f32], out: &mut Vec<StreamWord>) -> Result<()> {
-        let beam = &self.decoder.beam;
-        push_row(&mut self.window, log_probs, beam, self.now)?;
+        self.step(log_probs)?;
+        for job in self.jobs.drain(..) {
+            self.finisher.run(job, out);
+        }
+        Ok(())
+    }
+
+    /// The search part of [`Self::push`]: one frame, and the commits it
+    /// makes queued as jobs (see [`Self::take_jobs`]) instead of rescored
+    /// here, so that a [`WordFinisher`] on another thread can do that work
+    /// while this one reads on.
+    pub fn step(&mut self, log_probs: &[f32]) -> Result<()> {
+        push_row(&mut self.window, log_probs, &self.beam, self.now)?;
         let t = self.window.blank.len() - 1;
         self.search.step(
             &self.window,
             t,
             self.now,
-            beam.beam_width,
-            beam.merge_equal_text,
+            self.beam.beam_width,
+            self.beam.merge_equal_text,
         );
         self.now += 1;
         // Several words may be final at once (after a commit, the next
@@ -766,7 +822,7 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
         let mut just_committed = false;
         loop {
             if let Some(node) = self.search.agreed_space(self.agree_ratio) {
-                self.commit(node, false, CommitRule::Agreement, out);
+                self.commit(node, false, CommitRule::Agreement);
                 just_committed = true;
                 continue;
             }
@@ -789,7 +845,7 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
             self.candidate = Some((n, since));
             if self.now - since >= self.params.hold_frames as u64 {
                 self.last_since = since;
-                self.commit(n, false, CommitRule::Held, out);
+                self.commit(n, false, CommitRule::Held);
                 just_committed = true;
                 continue;
             }
@@ -797,10 +853,20 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
         }
         if self.window.blank.len() > self.params.max_frames {
             if let Some(lead) = self.search.leader() {
-                self.commit(lead.cnode, true, CommitRule::Bound, out);
+                self.commit(lead.cnode, true, CommitRule::Bound);
             }
         }
+        if self.search.cells.len() > 4 * COMPACT_NODES {
+            // A long stretch without commits: drop abandoned prefixes.
+            self.search.compact();
+            self.candidate = None;
+        }
         Ok(())
+    }
+
+    /// The commits made by [`Self::step`] since the last call, in order.
+    pub fn take_jobs(&mut self) -> std::vec::Drain<'_, CommitJob> {
+        self.jobs.drain(..)
     }
 
     /// The leading hypothesis's text since the last committed word (a
@@ -817,116 +883,127 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
 
     /// End of the stream: append the remaining words to `out`.
     pub fn finish(mut self, out: &mut Vec<StreamWord>) -> Result<()> {
+        // `self` goes into `finish_jobs`; the finisher (with the output
+        // reader's state) is kept.
+        let decoder = self.finisher.decoder;
+        let mut finisher = std::mem::replace(&mut self.finisher, WordFinisher::new(decoder));
+        for job in self.finish_jobs() {
+            finisher.run(job, out);
+        }
+        Ok(())
+    }
+
+    /// End of the stream for [`Self::step`] users: the queued jobs and the
+    /// last one (the rest of the best reading), in order.
+    pub fn finish_jobs(mut self) -> Vec<CommitJob> {
         let rel = self.search.best_final();
         let mut cells = Vec::with_capacity(rel.len() + 1);
         if self.carry {
             cells.push(Cell::EMPTY);
         }
         cells.extend_from_slice(&rel);
-        let k = cells.len();
-        self.emit(&cells, k, CommitRule::End, out);
-        let tail = self.out_reader.clone().finish();
-        self.pending_text.push_str(&tail);
-        let rest = std::mem::take(&mut self.pending_text);
-        if !rest.trim().is_empty() {
-            // Text the reader held back until the end joins the last word.
-            match out.last_mut() {
-                Some(w) if w.rule == CommitRule::End && !rest.starts_with(' ') => {
-                    w.text.push_str(rest.trim_end())
-                }
-                _ => out.push(StreamWord {
-                    text: rest.trim().to_string(),
-                    raw: String::new(),
-                    frames: (self.now, self.now),
-                    rule: CommitRule::End,
-                }),
-            }
-        }
-        Ok(())
+        let aligned = cells.len();
+        let frames = std::mem::replace(&mut self.window, empty_window());
+        let mut jobs = std::mem::take(&mut self.jobs);
+        jobs.push(CommitJob {
+            frames,
+            start: self.window_start,
+            cells,
+            carry: self.carry,
+            aligned,
+            rule: CommitRule::End,
+        });
+        jobs
     }
 
     /// Commit the prefix up to `node` (a space node unless `rule` is
-    /// [`CommitRule::Bound`]).
-    fn commit(
-        &mut self,
-        node: u32,
-        only_leader: bool,
-        rule: CommitRule,
-        out: &mut Vec<StreamWord>,
-    ) {
-        let Some(lead) = self.search.leader() else {
-            return;
-        };
-        // The leader's cells, with the carried space first: their
-        // posteriors over the held frames place the committed cells.
+    /// [`CommitRule::Bound`]): queue its job, keep only the frames from the
+    /// space's first frame on, and make `node` the search's root.
+    fn commit(&mut self, node: u32, only_leader: bool, rule: CommitRule) {
         let mut cells = Vec::new();
         if self.carry {
             cells.push(Cell::EMPTY);
         }
-        let committed = self.search.path(node).len();
-        cells.extend(self.search.path(lead.cnode));
-        let k = committed + usize::from(self.carry);
-        let cut = self.emit(&cells, k, rule, out);
+        cells.extend(self.search.path(node));
+        let job = if rule == CommitRule::Bound {
+            let aligned = cells.len();
+            let frames = std::mem::replace(&mut self.window, empty_window());
+            let n = frames.blank.len() as u64;
+            let job = CommitJob {
+                frames,
+                start: self.window_start,
+                cells,
+                carry: self.carry,
+                aligned,
+                rule,
+            };
+            self.window_start += n;
+            self.carry = false;
+            job
+        } else {
+            // The space's frames start where its tree node appeared.
+            let born = self.search.cells[node as usize].born;
+            let cut =
+                (born.saturating_sub(self.window_start) as usize).min(self.window.blank.len());
+            let frames = split_front(&mut self.window, cut);
+            let job = CommitJob {
+                frames,
+                start: self.window_start,
+                aligned: cells.len() - 1,
+                cells,
+                carry: self.carry,
+                rule,
+            };
+            self.window_start += cut as u64;
+            self.carry = true;
+            job
+        };
+        self.jobs.push(job);
         self.search.rebase(node, only_leader);
         self.candidate = None;
-        match rule {
-            CommitRule::Bound => {
-                let n = self.window.blank.len();
-                drop_front(&mut self.window, n);
-                self.window_start += n as u64;
-                self.carry = false;
-            }
-            _ => {
-                // The space's first frame, or (when the posteriors failed)
-                // the frame its tree node appeared.
-                let at = cut.unwrap_or_else(|| {
-                    (self.search.cells[ROOT as usize]
-                        .born
-                        .saturating_sub(self.window_start)) as usize
-                });
-                let at = at.min(self.window.blank.len());
-                drop_front(&mut self.window, at);
-                self.window_start += at as u64;
-                self.carry = true;
-            }
+    }
+}
+
+impl<'d, 'a, C: BrailleCode> WordFinisher<'d, 'a, C> {
+    /// A finisher for the words of a stream read with `decoder`.
+    pub fn new(decoder: &'d Decoder<'a, C>) -> Self {
+        let code: &'a C = decoder.code;
+        WordFinisher {
+            decoder,
+            out_reader: code.reader(),
+            pending_text: String::new(),
         }
     }
 
-    /// Rescore and emit the words among `cells[..k]` (cells beyond `k`
-    /// only help place them). Returns the first frame (window-relative) of
-    /// cell `k - 1` when the posteriors could be computed.
-    fn emit(
-        &mut self,
-        cells: &[Cell],
-        k: usize,
-        rule: CommitRule,
-        out: &mut Vec<StreamWord>,
-    ) -> Option<usize> {
+    /// Rescore the words of `job` and append them to `out`.
+    pub fn run(&mut self, job: CommitJob, out: &mut Vec<StreamWord>) {
         let code: &'a C = self.decoder.code;
-        let post = align::posteriors(&self.window, cells);
-        let ev = post.as_ref().map(|(_, p)| evidence(cells, p));
+        let cells = &job.cells;
+        let aligned = &cells[..job.aligned.min(cells.len())];
+        let post = align::posteriors(&job.frames, aligned);
+        let ev = post.as_ref().map(|(_, p)| evidence(aligned, p));
         let mut choices = Vec::new();
         if let (Some(ev), Some((lexicon, weights))) = (&ev, &self.decoder.lexicon) {
-            if rule != CommitRule::Bound {
+            if job.rule != CommitRule::Bound {
                 let reading = Reading {
                     text: String::new(),
                     hypotheses: Vec::new(),
-                    cells: ev[..k].to_vec(),
+                    cells: ev.clone(),
                     chars: Vec::new(),
                     confidence: 0.0,
                     log_likelihood: 0.0,
                 };
                 let r =
-                    crate::lexicon::rescore_pruned(&self.window, &reading, code, lexicon, weights);
+                    crate::lexicon::rescore_pruned(&job.frames, &reading, code, lexicon, weights);
                 choices = r.words;
             }
         }
-        let n_t = self.window.blank.len();
-        let skip = usize::from(self.carry);
-        let mut i = skip;
+        let n_t = job.frames.blank.len();
+        let k = cells.len();
+        let mut i = usize::from(job.carry);
         while i < k {
             if cells[i] == Cell::EMPTY {
-                self.out_reader_push(cells[i]);
+                self.push_cell(cells[i]);
                 i += 1;
                 continue;
             }
@@ -947,19 +1024,19 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
                 (Some(c), _) => c.frames,
                 (None, Some(ev)) => {
                     let from = if s > 0 { ev[s - 1].frames.1 + 1 } else { 0 };
-                    let to = if i < ev.len() { ev[i].frames.0 } else { n_t };
+                    let to = ev.get(i).map_or(n_t, |e| e.frames.0);
                     (from.min(n_t), to.min(n_t).max(from.min(n_t)))
                 }
-                (None, None) => (n_t, n_t),
+                (None, None) => (0, n_t),
             };
             for &c in &chosen {
-                self.out_reader_push(c);
+                self.push_cell(c);
             }
             if i < k {
                 // The space after the word: the reader may release held text.
-                self.out_reader_push(cells[i]);
+                self.push_cell(cells[i]);
                 i += 1;
-            } else if rule == CommitRule::End {
+            } else if job.rule == CommitRule::End {
                 let tail = self.out_reader.clone().finish();
                 self.pending_text.push_str(&tail);
                 self.out_reader = code.reader();
@@ -970,21 +1047,56 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
                 out.push(StreamWord {
                     text: word,
                     raw,
-                    frames: (
-                        self.window_start + frames.0 as u64,
-                        self.window_start + frames.1 as u64,
-                    ),
-                    rule,
+                    frames: (job.start + frames.0 as u64, job.start + frames.1 as u64),
+                    rule: job.rule,
                 });
             }
         }
-        ev.and_then(|ev| ev.get(k.checked_sub(1)?).map(|e| e.frames.0))
+        if job.rule == CommitRule::End {
+            // Text the reader held back until the end.
+            let tail = self.out_reader.clone().finish();
+            self.pending_text.push_str(&tail);
+            let rest = std::mem::take(&mut self.pending_text);
+            let end = job.start + n_t as u64;
+            match out.last_mut() {
+                Some(w)
+                    if !rest.trim().is_empty()
+                        && !rest.starts_with(' ')
+                        && w.rule == CommitRule::End =>
+                {
+                    w.text.push_str(rest.trim_end())
+                }
+                _ if !rest.trim().is_empty() => out.push(StreamWord {
+                    text: rest.trim().to_string(),
+                    raw: String::new(),
+                    frames: (end, end),
+                    rule: CommitRule::End,
+                }),
+                _ => {}
+            }
+        }
     }
 
-    fn out_reader_push(&mut self, cell: Cell) {
+    fn push_cell(&mut self, cell: Cell) {
         let piece = self.out_reader.push(cell);
         self.pending_text.push_str(&piece);
     }
+}
+
+/// Split off and return the first `k` frames of `window`, which keeps the
+/// rest (only the rest is copied).
+fn split_front(window: &mut Pruned, k: usize) -> Pruned {
+    let k = k.min(window.blank.len());
+    let c0 = window.start[k];
+    let tail = Pruned {
+        blank: window.blank.split_off(k),
+        start: window.start[k..].iter().map(|s| s - c0).collect(),
+        class: window.class.split_off(c0),
+        prob: window.prob.split_off(c0),
+        all: window.all.split_off(k * 64),
+    };
+    window.start.truncate(k + 1);
+    std::mem::replace(window, tail)
 }
 
 fn empty_window() -> Pruned {
@@ -1257,6 +1369,32 @@ mod tests {
         }
         .check()
         .is_err());
+    }
+
+    #[test]
+    fn deferred_jobs_give_the_words_of_push() {
+        let table = en();
+        let lexicon = Lexicon::builtin("en").unwrap();
+        let decoder = Decoder::new(&table, BeamParams::default())
+            .unwrap()
+            .with_lexicon(&lexicon, RescoreWeights::default())
+            .unwrap();
+        let mut rng = ChaCha8Rng::seed_from_u64(9);
+        let lp = frames_for(&ambiguous(&table, &TEXTS.join(" "), &mut rng), 2);
+        let (inline, _) = streamed(&decoder, &lp, StreamParams::default());
+        let mut s = WordStream::new(&decoder, StreamParams::default()).unwrap();
+        let mut jobs = Vec::new();
+        for row in lp.outer_iter() {
+            s.step(row.as_slice().unwrap()).unwrap();
+            jobs.extend(s.take_jobs());
+        }
+        jobs.extend(s.finish_jobs());
+        let mut fin = WordFinisher::new(&decoder);
+        let mut words = Vec::new();
+        for job in jobs {
+            fin.run(job, &mut words);
+        }
+        assert_eq!(words, inline);
     }
 
     #[test]
