@@ -36,6 +36,7 @@
 //! ```
 #![deny(missing_docs)]
 
+pub mod batch;
 pub mod braille;
 pub mod decode;
 mod error;

@@ -9,7 +9,6 @@ use std::path::PathBuf;
 use tactread::braille::CodeTable;
 use tactread::decode::{BeamParams, CommitRule, Decoder, StreamParams, StreamWord};
 use tactread::lexicon::RescoreWeights;
-use tactread::net::Model;
 use tactread::recording::CsvFrameReader;
 use tactread::stream::{read_recording_streamed, stream_frames, StreamReader};
 use tactread::{Error, Result};
@@ -28,6 +27,8 @@ pub(crate) struct Options {
     pub json: bool,
     /// Show the running partial reading on stderr.
     pub partial: bool,
+    /// `--list` or `--jobs` was given (batch options: refused).
+    pub listed: bool,
 }
 
 /// Where words go: stdout, flushed after every word.
@@ -81,6 +82,13 @@ fn show_partial(last: &mut String, text: String) {
 
 /// Run `tactread decode MODEL [REC] --stream`.
 pub(crate) fn run(o: Options) -> Result<()> {
+    if o.listed {
+        return Err(Error::config(
+            "--stream",
+            "reads one recording or stdin: leave out --list and --jobs (they are for \
+             decoding many recordings without --stream)",
+        ));
+    }
     if o.recordings.len() > 1 {
         return Err(Error::config(
             "--stream",
@@ -91,7 +99,7 @@ pub(crate) fn run(o: Options) -> Result<()> {
             ),
         ));
     }
-    let model = Model::load(&o.model)?;
+    let model = super::load_model(&o.model)?;
     let lang = o.lang.clone().unwrap_or_else(|| model.lang.clone());
     let table = CodeTable::builtin(&lang)?;
     let lexicon = load_lexicon(o.lexicon.as_deref(), &lang)?;
