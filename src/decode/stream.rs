@@ -201,8 +201,8 @@ struct Search<R: CodeReader> {
     cindex: FxMap<(u32, u8), u32>,
     /// Text node and reader after each cell node, once computed.
     after: Vec<Option<(u32, R)>>,
-    texts: Vec<(u32, String)>,
-    tindex: FxMap<(u32, String), u32>,
+    texts: Vec<(u32, Piece)>,
+    tindex: FxMap<(u32, Piece), u32>,
     beam: Vec<Hyp>,
     next: Vec<Hyp>,
     index: FxMap<u32, usize>,
@@ -214,6 +214,36 @@ struct Search<R: CodeReader> {
     /// still in the trees until the next compaction.
     root: u32,
     root_text: u32,
+}
+
+/// A piece of text one cell produced. Nearly all are a character or two,
+/// kept inline: the search makes one per new tree node, and freeing tens of
+/// thousands of small strings at a compaction would cost a millisecond.
+#[derive(Debug, Clone, PartialEq, Eq, Hash)]
+enum Piece {
+    Inline(u8, [u8; 14]),
+    Heap(Box<str>),
+}
+
+impl Piece {
+    fn new(s: &str) -> Piece {
+        let b = s.as_bytes();
+        if b.len() <= 14 {
+            let mut a = [0u8; 14];
+            a[..b.len()].copy_from_slice(b);
+            Piece::Inline(b.len() as u8, a)
+        } else {
+            Piece::Heap(s.into())
+        }
+    }
+
+    fn as_str(&self) -> &str {
+        match self {
+            // Always the bytes of a whole `&str` (see `new`).
+            Piece::Inline(n, a) => std::str::from_utf8(&a[..*n as usize]).unwrap_or_default(),
+            Piece::Heap(s) => s,
+        }
+    }
 }
 
 /// The trees are rebuilt from the live hypotheses (dropping every node of
@@ -233,7 +263,7 @@ impl<R: CodeReader> Search<R> {
             }],
             cindex: FxMap::default(),
             after: vec![Some((ROOT, reader))],
-            texts: vec![(ROOT, String::new())],
+            texts: vec![(ROOT, Piece::new(""))],
             tindex: FxMap::default(),
             beam: vec![Hyp {
                 cnode: ROOT,
@@ -271,7 +301,7 @@ impl<R: CodeReader> Search<R> {
     }
 
     fn text_child(&mut self, parent: u32, piece: String) -> u32 {
-        let key = (parent, piece);
+        let key = (parent, Piece::new(&piece));
         if let Some(&id) = self.tindex.get(&key) {
             return id;
         }
@@ -546,7 +576,8 @@ impl<R: CodeReader> Search<R> {
         }];
         self.cindex.clear();
         self.after = vec![Some((ROOT, reader))];
-        self.texts = vec![(ROOT, String::new())];
+        self.texts.clear();
+        self.texts.push((ROOT, Piece::new("")));
         self.tindex.clear();
         self.root = ROOT;
         self.root_text = ROOT;
