@@ -1303,6 +1303,12 @@ mod tests {
         }
     }
 
+    /// "Boats 12 at Noon" in UEB: the capital indicator (dot 6) before `B`
+    /// and `N`, the numeric indicator (dots 3-4-5-6) before `12`, whose
+    /// effect a space ends (ICEB, "The Rules of Unified English Braille",
+    /// 2nd ed. 2013, sections 6 and 8; from memory). Each indicator's cell
+    /// is read by the output reader in the same commit as what it applies
+    /// to, and the state is carried from one commit to the next.
     #[test]
     fn indicators_carry_across_commits_and_the_first_word_is_final_early() {
         let table = en();
