@@ -98,6 +98,7 @@ fn main() {
     let decoder = Decoder::new(&table, BeamParams::default())
         .and_then(|d| d.with_lexicon(&lexicon, RescoreWeights::default()))
         .expect("decoder");
+    let decoders = vec![&decoder; n];
 
     println!(
         "batch decoding: {n} recordings, default model ({} x {} uni), beam {}, builtin en lexicon; \
@@ -116,7 +117,7 @@ fn main() {
         for _ in 0..rounds {
             let c0 = process_cpu_s();
             let t = Instant::now();
-            let results = read_many(&model, &decoder, &paths, threads, || {}).expect("pool");
+            let results = read_many(&model, &decoders, &paths, threads, || {}).expect("pool");
             let secs = t.elapsed().as_secs_f64();
             if let (Some(a), Some(b)) = (c0, process_cpu_s()) {
                 cpu.push((b - a) * 1e3 / n as f64);

@@ -51,19 +51,31 @@ pub fn read_one<C: BrailleCode>(
     })
 }
 
-/// Reads every manifest of `paths` with `model` and `decoder` on `jobs`
-/// worker threads (0: one per core), calling `done` after each recording
-/// (from the worker threads, in any order; for a progress bar). The
-/// results are in the order of `paths`; a recording that cannot be read
-/// gets its own error and does not stop the others. Fails as a whole only
-/// when the thread pool cannot start.
+/// Reads every manifest of `paths` with `model` on `jobs` worker threads
+/// (0: one per core), recording `i` with `decoders[i]` (e.g. one decoder
+/// per language pack; the same one repeated for a single language),
+/// calling `done` after each recording (from the worker threads, in any
+/// order; for a progress bar). The results are in the order of `paths`; a
+/// recording that cannot be read gets its own error and does not stop the
+/// others. Fails as a whole only when `decoders` and `paths` differ in
+/// length or the thread pool cannot start.
 pub fn read_many<C: BrailleCode + Sync>(
     model: &Model,
-    decoder: &Decoder<'_, C>,
+    decoders: &[&Decoder<'_, C>],
     paths: &[PathBuf],
     jobs: usize,
     done: impl Fn() + Sync,
 ) -> Result<Vec<Result<BatchRead>>> {
+    if decoders.len() != paths.len() {
+        return Err(Error::config(
+            "decoders",
+            format!(
+                "{} decoders for {} recordings: give one per recording",
+                decoders.len(),
+                paths.len()
+            ),
+        ));
+    }
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(jobs)
         .build()
@@ -71,8 +83,9 @@ pub fn read_many<C: BrailleCode + Sync>(
     Ok(pool.install(|| {
         paths
             .par_iter()
-            .map(|p| {
-                let r = read_one(model, decoder, p);
+            .zip(decoders.par_iter())
+            .map(|(p, d)| {
+                let r = read_one(model, d, p);
                 done();
                 r
             })

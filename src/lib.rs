@@ -40,7 +40,7 @@ pub mod batch;
 pub mod braille;
 pub mod decode;
 mod error;
-mod fsutil;
+pub mod fsutil;
 pub mod lexicon;
 pub mod metrics;
 pub mod net;

@@ -187,3 +187,43 @@ fn a_bad_recording_fails_alone() {
     assert!(stderr(&o).contains("no *.json"), "{}", stderr(&o));
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+#[test]
+fn each_recording_is_read_in_its_own_language() {
+    let dir = fresh_dir("langs");
+    let mut config = SimConfig::new(Preset::Clean);
+    config.sensor.sample_rate_hz = 100.0;
+    let sim = Simulator::new(config).unwrap();
+    // Invented shop labels; German `ß` and `ü` need the German code table.
+    for (name, lang, text) in [("a", "en", "tea box"), ("b", "de", "süße Äpfel")] {
+        let table = CodeTable::builtin(lang).unwrap();
+        let rec = sim.simulate_text(text, &table, 7).unwrap();
+        rec.save(
+            &dir.join("scans").join(format!("{name}.json")),
+            FramesKind::Csv,
+        )
+        .unwrap();
+    }
+    let o = tactread(&dir, &["decode", "default", "scans", "--format", "jsonl"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let lines = json_lines(&o);
+    let langs: Vec<&str> = lines.iter().map(|v| v["lang"].as_str().unwrap()).collect();
+    assert_eq!(langs, ["en", "de"]);
+    // The same as reading the German one alone with --lang de.
+    let o = tactread(&dir, &["decode", "default", "scans/b.json", "--lang", "de"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(
+        lines[1]["text"].as_str().unwrap(),
+        String::from_utf8_lossy(&o.stdout).trim_end()
+    );
+    // --lang reads every one in that language.
+    let o = tactread(
+        &dir,
+        &[
+            "decode", "default", "scans", "--format", "jsonl", "--lang", "en",
+        ],
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(json_lines(&o).iter().all(|v| v["lang"] == "en"));
+    std::fs::remove_dir_all(&dir).unwrap();
+}

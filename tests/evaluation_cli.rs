@@ -4,29 +4,11 @@
 
 mod common;
 
+use common::cli::{s, scratch as temp_dir, tactread};
 use common::{synthetic_set, toy_recording};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 use tactread::metrics::{evaluate, EvalSettings};
 use tactread::recording::FramesKind;
-
-fn tactread(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .output()
-        .expect("the binary runs")
-}
-
-fn temp_dir(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tactread-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
 
 fn write_metrics(dir: &Path) -> (PathBuf, PathBuf, PathBuf) {
     let settings = EvalSettings {

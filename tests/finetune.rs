@@ -4,8 +4,9 @@
 //! trained from scratch on the same small set with the same epoch budget.
 //!
 //! The default model (models/default.json, see docs/default-model.md) was
-//! trained on the `typical` preset (en, de, fr, es), `hex24` fingertip at 100 Hz, NLS
-//! Specification 800 dots (0.48 mm high). The new condition here is the
+//! trained on the `typical` preset, `hex24` fingertip at 100 Hz, 15-25 mm/s,
+//! NLS Specification 800 dots (0.48 mm high), English, German, French and
+//! Spanish lines; the target set here is English. The new condition here is the
 //! `low-dots` page (0.2 mm dots, Marburg Medium spacing: 6.0 mm cells
 //! instead of 6.2 mm), same sensor and rate: the signal is weaker and the
 //! cells come closer together, so the untouched model misreads many cells.
@@ -229,6 +230,8 @@ fn cli_train_init_fine_tunes_and_refuses_what_cannot_agree() {
         "{}",
         err(&o)
     );
+    // Refused before any data is loaded.
+    assert!(!err(&o).contains("loaded in"), "{}", err(&o));
     for bad in [
         &["--init", "default", "--step-mm", "0.4"][..],
         &["--refit-prep"][..],

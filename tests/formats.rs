@@ -6,6 +6,9 @@
 // cross-checks of our readers and writers against general-purpose reference
 // implementations of the container formats (NumPy, the npyz crate).
 
+mod common;
+
+use common::cli::scratch;
 use ndarray::Array2;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -20,14 +23,6 @@ fn compat(rel: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR"))
         .join("tests/compat")
         .join(rel)
-}
-
-/// A fresh empty folder under the target directory, unique per test.
-fn scratch(name: &str) -> PathBuf {
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join(format!("formats-{name}"));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
 }
 
 fn input_error(err: Error) -> (Location, String) {

@@ -2,26 +2,9 @@
 //! dataset, one short training run, the model file it writes, and the
 //! errors a user meets (existing output, bad options, missing data).
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
-fn tactread(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .output()
-        .expect("the binary runs")
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tactread-train-cli-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
+use common::cli::{s, scratch, tactread};
 
 #[test]
 fn trains_a_small_model_and_reports_test_figures() {

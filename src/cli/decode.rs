@@ -7,13 +7,14 @@
 use clap::{Args as ClapArgs, ValueEnum};
 use indicatif::{ProgressBar, ProgressStyle};
 use serde_json::{json, Value};
+use std::collections::BTreeMap;
 use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
 use tactread::batch::{read_many, BatchRead};
 use tactread::braille::CodeTable;
 use tactread::decode::{BeamParams, Decoded, Decoder};
 use tactread::lexicon::{Lexicon, RescoreWeights};
-use tactread::recording::Dataset;
+use tactread::recording::{Dataset, RecordingStream};
 use tactread::{Error, Result};
 
 /// Options of `tactread decode`.
@@ -24,7 +25,7 @@ A folder holding an index.json is a dataset: all its recordings, in index order;
 *.json manifests directly inside it, sorted by name (subfolders are not entered). A list file has one \
 path per line, relative to the list file's folder; blank lines and lines starting with # are skipped.\n\n\
 A recording that cannot be read does not stop the others: its error goes to standard error (and to its \
-line of JSON output), the rest are decoded, and the exit code is 1 at the end.\n\n\
+line of JSON output), the rest are decoded, and the exit code is 1 at the end (a single recording fails with its own error and exit code).\n\n\
 Examples:\n  tactread decode default scan.json\n  tactread decode default scans/ --format jsonl --jobs 2 > read.jsonl"
 )]
 pub struct Args {
@@ -43,8 +44,9 @@ pub struct Args {
     /// Worker threads decoding in parallel (default: one per core).
     #[arg(long, value_name = "N")]
     jobs: Option<usize>,
-    /// Language pack: picks the code table and the builtin lexicon together
-    /// (default: the model's training language).
+    /// Language pack for every recording: picks the code table and the
+    /// builtin lexicon together (default: each recording's manifest `lang`,
+    /// else the model's training language).
     #[arg(long)]
     lang: Option<String>,
     /// Beam width (default 16).
@@ -111,27 +113,72 @@ pub fn run(args: Args) -> Result<()> {
     }
     let paths = inputs(&args.recordings, args.list.as_deref())?;
     let model = super::load_model(&args.model)?;
-    let lang = args.lang.clone().unwrap_or_else(|| model.lang.clone());
-    let table = CodeTable::builtin(&lang)?;
-    let lexicon = load_lexicon(args.lexicon.as_deref(), &lang)?;
     let beam = BeamParams {
         beam_width: args.beam,
         n_best: args.n_best.min(args.beam.max(1)),
         ..BeamParams::default()
     };
-    let mut decoder = Decoder::new(&table, beam)?;
     let weights = match &args.weights {
         Some(p) => load_weights(p)?,
         None => RescoreWeights::default(),
     };
-    if let Some(lex) = &lexicon {
-        decoder = decoder.with_lexicon(lex, weights)?;
+    // Each recording is read in its own language (its manifest's `lang`,
+    // else the model's), unless --lang names one for all. A manifest that
+    // cannot be read here fails later, alone, when its recording is read.
+    let langs: Vec<String> = paths
+        .iter()
+        .map(|p| match &args.lang {
+            Some(l) => l.clone(),
+            None => RecordingStream::open(p)
+                .ok()
+                .and_then(|r| r.manifest().lang.clone())
+                .filter(|l| !l.is_empty())
+                .unwrap_or_else(|| model.lang.clone()),
+        })
+        .collect();
+    let mut packs: BTreeMap<String, (CodeTable, Option<Lexicon>)> = BTreeMap::new();
+    for (lang, path) in langs.iter().zip(&paths) {
+        if packs.contains_key(lang) {
+            continue;
+        }
+        let table = CodeTable::builtin(lang).map_err(|e| match &args.lang {
+            Some(_) => e,
+            None => Error::input(
+                tactread::Location::file(path).field("lang"),
+                format!("{e}; pass --lang to read the recordings in a language pack you have"),
+            ),
+        })?;
+        let lexicon = load_lexicon(args.lexicon.as_deref(), lang)?;
+        packs.insert(lang.clone(), (table, lexicon));
     }
-    if args.lang.is_some() && lang != model.lang {
-        eprintln!(
-            "note: the model was trained on `{}` text; reading it as `{lang}`",
-            model.lang
-        );
+    let mut decoders: BTreeMap<&str, Decoder<'_, CodeTable>> = BTreeMap::new();
+    for (lang, (table, lexicon)) in &packs {
+        let mut d = Decoder::new(table, beam.clone())?;
+        if let Some(lex) = lexicon {
+            d = d.with_lexicon(lex, weights.clone())?;
+        }
+        decoders.insert(lang.as_str(), d);
+    }
+    let per_item: Vec<&Decoder<'_, CodeTable>> = langs
+        .iter()
+        .map(|l| {
+            decoders
+                .get(l.as_str())
+                .ok_or_else(|| Error::config("lang", format!("no decoder for `{l}`")))
+        })
+        .collect::<Result<_>>()?;
+    let known = &model.training.languages;
+    if let Some(lang) = &args.lang {
+        if *lang != model.lang && !known.contains(lang) {
+            eprintln!(
+                "note: the model was trained on `{}` text; reading it as `{lang}`",
+                if known.is_empty() {
+                    model.lang.clone()
+                } else {
+                    known.join(", ")
+                }
+            );
+        }
     }
 
     let bar = if paths.len() > 1 && std::io::stderr().is_terminal() {
@@ -144,7 +191,7 @@ pub fn run(args: Args) -> Result<()> {
             .unwrap_or_else(|_| ProgressStyle::default_bar())
             .progress_chars("=> "),
     );
-    let mut results = read_many(&model, &decoder, &paths, args.jobs.unwrap_or(0), || {
+    let mut results = read_many(&model, &per_item, &paths, args.jobs.unwrap_or(0), || {
         bar.inc(1)
     })?;
     bar.finish_and_clear();
@@ -185,8 +232,12 @@ pub fn run(args: Args) -> Result<()> {
             let items: Vec<Value> = names
                 .iter()
                 .zip(&results)
-                .map(|(name, r)| match r {
-                    Ok(b) => to_json(name, &lang, lexicon.is_some(), &b.decoded),
+                .zip(&langs)
+                .map(|((name, r), lang)| match r {
+                    Ok(b) => {
+                        let rescored = packs.get(lang).is_some_and(|(_, l)| l.is_some());
+                        to_json(name, lang, rescored, &b.decoded)
+                    }
                     Err(e) => json!({ "recording": name, "error": e.to_string() }),
                 })
                 .collect();
@@ -197,13 +248,19 @@ pub fn run(args: Args) -> Result<()> {
                 serde_json::to_string_pretty(&doc).unwrap_or_default()
             )
         }
-        Format::Jsonl => names.iter().zip(&results).try_for_each(|(name, r)| {
-            let line = match r {
-                Ok(b) => to_json_line(name, &lang, b),
-                Err(e) => json!({ "recording": name, "error": e.to_string() }),
-            };
-            writeln!(out, "{line}")
-        }),
+        Format::Jsonl => {
+            names
+                .iter()
+                .zip(&results)
+                .zip(&langs)
+                .try_for_each(|((name, r), lang)| {
+                    let line = match r {
+                        Ok(b) => to_json_line(name, lang, b),
+                        Err(e) => json!({ "recording": name, "error": e.to_string() }),
+                    };
+                    writeln!(out, "{line}")
+                })
+        }
     };
     match written.and_then(|_| out.flush()) {
         Ok(()) => {}
@@ -343,7 +400,10 @@ fn to_json_line(name: &str, lang: &str, b: &BatchRead) -> Value {
 
 /// Rescoring weights from a JSON file written by `tactread lexicon tune`.
 pub(crate) fn load_weights(path: &Path) -> Result<RescoreWeights> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
+    let text = tactread::fsutil::read_utf8(
+        path,
+        "a weights file is UTF-8 JSON written by `tactread lexicon tune`: write it again",
+    )?;
     let w: RescoreWeights = serde_json::from_str(&text).map_err(|e| {
         Error::input(
             tactread::Location::file(path).line(e.line()),

@@ -7,6 +7,7 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 use tactread::braille::CodeTable;
 use tactread::decode::{BeamParams, Decoder};
+use tactread::fsutil::OutputGuard;
 use tactread::lexicon::{Lexicon, RescoreWeights};
 use tactread::metrics::{evaluate, EvalRecording, EvalSettings, Hypothesis, Metric, Reference};
 use tactread::recording::{Dataset, Split};
@@ -53,17 +54,12 @@ pub fn run(args: Args) -> Result<()> {
         ));
     }
     let report = args.out.join("report.html");
-    if report.exists() && !args.force {
-        return Err(Error::config(
-            "--out",
-            format!(
-                "{} exists: pass --force to overwrite it, or --out NEW_DIR",
-                report.display()
-            ),
-        ));
-    }
     let model = super::load_model(Path::new(super::DEFAULT_MODEL_WORD))?;
     let ds = Dataset::open(&data)?;
+    OutputGuard::new(args.force)
+        .input(data.join(tactread::recording::DATASET_INDEX))
+        .inputs(ds.entries().iter().map(|e| ds.manifest_path(e)))
+        .file(&report, "--out")?;
     let mut entries: Vec<_> = ds.split(Split::Test).cloned().collect();
     if let Some(n) = args.limit {
         entries.truncate(n);

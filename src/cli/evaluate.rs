@@ -14,6 +14,7 @@ use std::collections::BTreeMap;
 use std::path::PathBuf;
 use tactread::braille::CodeTable;
 use tactread::decode::{BeamParams, Decoded, Decoder};
+use tactread::fsutil::OutputGuard;
 use tactread::lexicon::{Lexicon, RescoreWeights};
 use tactread::metrics::{
     evaluate, EvalRecording, EvalSettings, Evaluation, Hypothesis, Metric, Reference,
@@ -51,6 +52,10 @@ pub struct Args {
     /// reading only (default: the language's builtin lexicon).
     #[arg(long)]
     lexicon: Option<String>,
+    /// Rescoring weights (JSON from `tactread lexicon tune`; default: the
+    /// built-in defaults).
+    #[arg(long)]
+    weights: Option<PathBuf>,
     /// Write the metrics file (JSON) here.
     #[arg(long)]
     json: Option<PathBuf>,
@@ -148,13 +153,11 @@ fn items(args: &Args) -> Result<Vec<Item>> {
         .collect()
 }
 
-fn check_output(path: &Option<PathBuf>, flag: &str, force: bool) -> Result<()> {
-    if let Some(p) = path {
-        if p.exists() && !force {
-            return Err(Error::Output {
-                path: p.clone(),
-                reason: format!("the file exists: pass --force to overwrite it ({flag})"),
-            });
+/// Check `--json` and `--report` against the inputs known so far.
+fn check_outputs(args: &Args, guard: &mut OutputGuard) -> Result<()> {
+    for (path, flag) in [(&args.json, "--json"), (&args.report, "--report")] {
+        if let Some(p) = path {
+            guard.file(p, flag)?;
         }
     }
     Ok(())
@@ -190,9 +193,22 @@ struct Read {
 
 /// Run `tactread evaluate`.
 pub fn run(args: Args) -> Result<()> {
-    check_output(&args.json, "--json", args.force)?;
-    check_output(&args.report, "--report", args.force)?;
     let items = items(&args)?;
+    let mut guard = OutputGuard::new(args.force);
+    guard.input(&args.model);
+    if let [dir] = args.data.as_slice() {
+        if dir.is_dir() {
+            guard.input(dir.join(tactread::recording::DATASET_INDEX));
+        }
+    }
+    if let Some(lexicon) = args.lexicon.as_deref().filter(|l| *l != "none") {
+        guard.input(lexicon);
+    }
+    if let Some(w) = &args.weights {
+        guard.input(w);
+    }
+    guard.inputs(items.iter().map(|i| &i.path));
+    check_outputs(&args, &mut guard)?;
     let model = super::load_model(&args.model)?;
     // Each recording is read in its own language (from the dataset index or
     // its manifest, else the model's), unless --lang names one for all.
@@ -220,11 +236,15 @@ pub fn run(args: Args) -> Result<()> {
         n_best: 3.min(args.beam.max(1)),
         ..BeamParams::default()
     };
+    let weights = match &args.weights {
+        Some(p) => super::decode::load_weights(p)?,
+        None => RescoreWeights::default(),
+    };
     let mut decoders: BTreeMap<&str, (&CodeTable, Decoder<'_, CodeTable>)> = BTreeMap::new();
     for (lang, (table, lexicon)) in &packs {
         let mut decoder = Decoder::new(table, beam.clone())?;
         if let Some(lex) = lexicon {
-            decoder = decoder.with_lexicon(lex, RescoreWeights::default())?;
+            decoder = decoder.with_lexicon(lex, weights.clone())?;
         }
         decoders.insert(lang.as_str(), (table, decoder));
     }
@@ -267,6 +287,11 @@ pub fn run(args: Args) -> Result<()> {
             .collect::<Result<Vec<_>>>()
     })?;
     bar.finish_and_clear();
+    for (item, r) in items.iter().zip(&reads) {
+        let dir = item.path.parent().unwrap_or(std::path::Path::new(""));
+        guard.input(dir.join(&r.rec.manifest.frames));
+    }
+    check_outputs(&args, &mut guard)?;
 
     // Alternatives go in for all recordings or none (the metrics need one or the other).
     let mut evals: Vec<EvalRecording> = reads.iter().map(|r| r.eval.clone()).collect();

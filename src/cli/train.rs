@@ -11,6 +11,7 @@ use std::path::PathBuf;
 use std::sync::Arc;
 use std::time::Instant;
 use tactread::braille::CodeTable;
+use tactread::fsutil::OutputGuard;
 use tactread::prep::Grid;
 use tactread::recording::{Dataset, Split};
 use tactread::train::{self, Event, Example, TrainConfig};
@@ -195,14 +196,52 @@ pub fn run(args: Args) -> Result<()> {
         },
     };
     config.check()?;
-    if args.out.exists() && !args.force && !args.resume {
-        return Err(Error::Output {
-            path: args.out.clone(),
-            reason: "the file exists: pass --force to replace it, or --resume to continue its run"
-                .into(),
-        });
+    if let Some((m, name)) = &init {
+        train::FineTune {
+            model: m,
+            name,
+            refit_prep: args.refit_prep,
+        }
+        .check(&config)?;
+    }
+    let ckpt = train::checkpoint_path(&args.out);
+    if args.resume && !ckpt.exists() {
+        return Err(Error::config(
+            "--resume",
+            format!(
+                "{} does not exist, so there is no interrupted run of {} to continue: check \
+                 --out, or start the run without --resume",
+                ckpt.display(),
+                args.out.display()
+            ),
+        ));
+    }
+    if !args.force && !args.resume {
+        for path in [&args.out, &ckpt] {
+            if path.exists() {
+                return Err(Error::Output {
+                    path: path.clone(),
+                    reason: "the file exists: pass --force to replace it, or --resume to \
+                             continue its run"
+                        .into(),
+                });
+            }
+        }
     }
     let ds = Dataset::open(&args.data)?;
+    // The model and its checkpoint never go over the dataset's files (the
+    // index, a manifest), even with --force; frames files are checked once
+    // the manifests are read.
+    let mut guard = OutputGuard::new(true);
+    guard
+        .input(ds.dir().join(tactread::recording::DATASET_INDEX))
+        .inputs(ds.entries().iter().map(|e| ds.manifest_path(e)));
+    if let Some(p) = args.init.as_ref().filter(|p| p.exists()) {
+        // Fine-tuning never writes over the model it starts from.
+        guard.input(p);
+    }
+    guard.file(&args.out, "--out")?;
+    guard.file(&ckpt, "--out (its checkpoint)")?;
     let (lang, tables) = languages(&ds)?;
     let table = CodeTable::builtin(&lang)?;
     let lang_list = tables.keys().cloned().collect::<Vec<_>>().join(", ");
@@ -218,6 +257,13 @@ pub fn run(args: Args) -> Result<()> {
                 load_split(&ds, Split::Test, &lang, &tables)?,
             ))
         })?;
+    for e in train_set.iter().chain(&val).chain(&test) {
+        let manifest = std::path::Path::new(&e.name);
+        let dir = manifest.parent().unwrap_or(std::path::Path::new(""));
+        guard.input(dir.join(&e.recording.manifest.frames));
+    }
+    guard.file(&args.out, "--out")?;
+    guard.file(&ckpt, "--out (its checkpoint)")?;
     eprintln!(
         "{}: {} train, {} validation, {} test recordings ({lang_list}), loaded in {:.1} s",
         args.data.display(),

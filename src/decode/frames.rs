@@ -102,6 +102,10 @@ impl Pruned {
     pub fn p(&self, t: usize, mask: u8) -> f64 {
         self.all[t * 64 + mask as usize]
     }
+    /// Probability of every pattern at frame `t`, `[64]`.
+    pub fn row(&self, t: usize) -> &[f64] {
+        &self.all[t * 64..t * 64 + 64]
+    }
 }
 
 /// Check (as [`check`]) and prune each frame of a `[n_frames, 65]` array in

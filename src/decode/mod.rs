@@ -55,6 +55,8 @@ mod align;
 mod code;
 mod frames;
 mod search;
+#[cfg(test)]
+mod search_reference;
 mod stream;
 
 pub use frames::{BLANK, N_CLASSES};
@@ -66,7 +68,6 @@ pub(crate) use frames::Pruned;
 
 use crate::{Cell, Result};
 use ndarray::ArrayView2;
-use std::collections::HashMap;
 use std::hash::Hash;
 
 /// What the decoder needs from a braille code's reader: the text each cell
@@ -359,19 +360,25 @@ pub(crate) fn read_pruned<R: CodeReader>(
         if ev.text.is_empty() {
             continue;
         }
-        let mut by_text: HashMap<String, f64> = HashMap::new();
-        by_text.insert(ev.text.clone(), post[i].q[ev.cell.mask() as usize & 63]);
+        // Texts with their summed probabilities, the read one first (a few
+        // entries: a list is cheaper than a map).
+        let mut by_text: Vec<(String, f64)> =
+            vec![(ev.text.clone(), post[i].q[ev.cell.mask() as usize & 63])];
         for (alt, p) in top_patterns(&post[i].q, PATTERNS_FOR_CHARS) {
             if alt == ev.cell {
                 continue;
             }
             let piece = before.clone().push(alt);
-            if !piece.is_empty() {
-                *by_text.entry(piece).or_insert(0.0) += p;
+            if piece.is_empty() {
+                continue;
+            }
+            match by_text.iter_mut().find(|(t, _)| *t == piece) {
+                Some(e) => e.1 += p,
+                None => by_text.push((piece, p)),
             }
         }
-        let prob = by_text.remove(&ev.text).unwrap_or(0.0);
-        let mut alternatives: Vec<(String, f64)> = by_text.into_iter().collect();
+        let prob = by_text[0].1;
+        let mut alternatives: Vec<(String, f64)> = by_text.split_off(1);
         alternatives.sort_by(|a, b| b.1.total_cmp(&a.1).then_with(|| a.0.cmp(&b.0)));
         alternatives.truncate(CHAR_ALTERNATIVES);
         chars.push(CharReading {

@@ -25,7 +25,7 @@ use super::frames::Pruned;
 use super::CodeReader;
 use crate::{Cell, Error, Result};
 use std::collections::HashMap;
-use std::hash::{BuildHasherDefault, Hash, Hasher};
+use std::hash::{BuildHasherDefault, Hasher};
 
 /// The multiply-rotate hash of rustc's `FxHasher` (from memory of the
 /// rustc-hash crate): far cheaper than SipHash on the small integer keys of
@@ -199,46 +199,82 @@ pub(crate) struct Found {
 
 const NO_CELL: u8 = u8::MAX;
 const ROOT: u32 = 0;
+/// `Hyp::cnode` of an extension whose tree node is not made yet.
+const PENDING: u32 = u32::MAX;
+/// End of a child or sibling list.
+const NIL: u32 = u32::MAX;
+/// Up to this many survivors, text merging finds equal keys by a linear
+/// search instead of hashing.
+const LINEAR_MERGE: usize = 48;
 
-/// A prefix tree: node `i` is `(parent, label)`; node 0 is the empty prefix.
-struct Trie<T: Hash + Eq + Clone> {
-    nodes: Vec<(u32, T)>,
-    index: FxMap<(u32, T), u32>,
+/// A prefix tree: node `i` has a parent and a label; node 0 is the empty
+/// prefix. Each node keeps its children as a linked list (first child,
+/// next sibling): a node has few children, so walking the list is cheaper
+/// than hashing `(parent, label)`.
+struct Trie<T: Eq + Clone> {
+    nodes: Vec<TrieNode<T>>,
 }
 
-impl<T: Hash + Eq + Clone> Trie<T> {
+struct TrieNode<T> {
+    parent: u32,
+    label: T,
+    first_child: u32,
+    next_sibling: u32,
+}
+
+impl<T: Eq + Clone> Trie<T> {
     fn new(root_label: T) -> Self {
         Trie {
-            nodes: vec![(ROOT, root_label)],
-            index: FxMap::default(),
+            nodes: vec![TrieNode {
+                parent: ROOT,
+                label: root_label,
+                first_child: NIL,
+                next_sibling: NIL,
+            }],
         }
     }
+    /// The child of `parent` with `label`, made if new.
     fn child(&mut self, parent: u32, label: T) -> u32 {
-        let key = (parent, label);
-        if let Some(&id) = self.index.get(&key) {
-            return id;
+        let mut k = self.nodes[parent as usize].first_child;
+        while k != NIL {
+            let node = &self.nodes[k as usize];
+            if node.label == label {
+                return k;
+            }
+            k = node.next_sibling;
         }
         let id = self.nodes.len() as u32;
-        self.nodes.push(key.clone());
-        self.index.insert(key, id);
+        let next_sibling = self.nodes[parent as usize].first_child;
+        self.nodes.push(TrieNode {
+            parent,
+            label,
+            first_child: NIL,
+            next_sibling,
+        });
+        self.nodes[parent as usize].first_child = id;
         id
     }
     /// Labels from the root to `node`, root excluded.
     fn path(&self, mut node: u32) -> Vec<T> {
         let mut out = Vec::new();
         while node != ROOT {
-            let (parent, label) = &self.nodes[node as usize];
-            out.push(label.clone());
-            node = *parent;
+            let n = &self.nodes[node as usize];
+            out.push(n.label.clone());
+            node = n.parent;
         }
         out.reverse();
         out
     }
 }
 
+/// A hypothesis: a node of the cell tree (or, for a new extension not yet
+/// in the tree, [`PENDING`] with the parent node in `from`), its last cell,
+/// and the probabilities of its alignments ending in a blank (`pb`) and in
+/// its last cell (`pnb`).
 #[derive(Clone, Copy)]
 struct Hyp {
     cnode: u32,
+    from: u32,
     last: u8,
     pb: f64,
     pnb: f64,
@@ -265,10 +301,17 @@ fn keep_top(v: &mut Vec<Hyp>, k: usize) {
 /// hypothesis of the final beam.
 ///
 /// Within a frame hypotheses are keyed by their cell sequence (a node of a
-/// prefix tree of cells). The reader is run only for the hypotheses that
-/// survive a first cut to twice the beam width, once per tree node (the
+/// prefix tree of cells). The beam's prefixes are distinct, so an extension
+/// `h + c` can only meet another hypothesis of the frame if `h + c` is
+/// itself in the beam: each frame links every beam member to its parent in
+/// the beam (if there), and every other extension is new, with no lookup.
+/// New extensions enter the tree only if they survive a first cut to twice
+/// the beam width; the reader is run for them once per tree node (the
 /// reader after a cell path depends only on the path); then hypotheses of
 /// equal text, state and last cell merge and the beam is cut to its width.
+/// The result is the same, hypothesis for hypothesis, as hashing every
+/// extension (the reference search of `search_reference.rs`, compared in
+/// the tests).
 pub(crate) fn search<R: CodeReader>(
     frames: &Pruned,
     reader: R,
@@ -283,6 +326,7 @@ pub(crate) fn search<R: CodeReader>(
     let mut after: Vec<Option<(u32, R)>> = vec![Some((ROOT, reader))];
     let mut beam: Vec<Hyp> = vec![Hyp {
         cnode: ROOT,
+        from: ROOT,
         last: NO_CELL,
         pb: 1.0,
         pnb: 0.0,
@@ -290,13 +334,20 @@ pub(crate) fn search<R: CodeReader>(
     let mut log_scale = 0f64;
     let floor = (-params.score_margin).exp();
     let mut next: Vec<Hyp> = Vec::new();
-    let mut index: FxMap<u32, usize> = FxMap::default();
+    // Per frame, for beam member i: its entry in `next`, its first child in
+    // the beam, and its next sibling in the beam (beam indices).
+    let mut slot: Vec<usize> = Vec::new();
+    let mut kid: Vec<u32> = Vec::new();
+    let mut sib: Vec<u32> = Vec::new();
+    let mut member: FxMap<u32, u32> = FxMap::default();
     let mut by_key: FxMap<(u32, R::State, u8), usize> = FxMap::default();
+    let mut keys: Vec<(u32, R::State, u8)> = Vec::new();
     let mut merged: Vec<Hyp> = Vec::new();
 
     for t in 0..frames.n_frames() {
         let blank = frames.blank[t];
         let (cands, probs) = frames.candidates(t);
+        let row = frames.row(t);
         if cands.is_empty() {
             // A frame that tries no extension (blank above `blank_skip`):
             // every prefix only stays, so the set of hypotheses is unchanged
@@ -307,7 +358,7 @@ pub(crate) fn search<R: CodeReader>(
                 h.pnb = if h.last == NO_CELL {
                     0.0
                 } else {
-                    h.pnb * frames.p(t, h.last)
+                    h.pnb * row[h.last as usize & 63]
                 };
                 h.pb = total * blank;
                 max = max.max(h.total());
@@ -324,32 +375,68 @@ pub(crate) fn search<R: CodeReader>(
             beam.retain(|h| h.total() >= floor);
             continue;
         }
-        next.clear();
-        index.clear();
-        let mut add = |next: &mut Vec<Hyp>, cnode: u32, last: u8, pb: f64, pnb: f64| match index
-            .get(&cnode)
-        {
-            Some(&i) => {
-                next[i].pb += pb;
-                next[i].pnb += pnb;
+        // Link the beam members to their parents in the beam.
+        let n = beam.len();
+        slot.clear();
+        slot.resize(n, usize::MAX);
+        kid.clear();
+        kid.resize(n, NIL);
+        sib.clear();
+        sib.resize(n, NIL);
+        if n > 1 {
+            member.clear();
+            for (i, h) in beam.iter().enumerate() {
+                member.insert(h.cnode, i as u32);
             }
-            None => {
-                index.insert(cnode, next.len());
+            for (i, h) in beam.iter().enumerate() {
+                if h.cnode == ROOT {
+                    continue;
+                }
+                let parent = cells.nodes[h.cnode as usize].parent;
+                if let Some(&j) = member.get(&parent) {
+                    sib[i] = kid[j as usize];
+                    kid[j as usize] = i as u32;
+                }
+            }
+        }
+        next.clear();
+        let add = |next: &mut Vec<Hyp>, slot: &mut [usize], i: usize, pb: f64, pnb: f64| {
+            if slot[i] == usize::MAX {
+                slot[i] = next.len();
+                let h = &beam[i];
                 next.push(Hyp {
-                    cnode,
-                    last,
+                    cnode: h.cnode,
+                    from: h.cnode,
+                    last: h.last,
                     pb,
                     pnb,
                 });
+            } else {
+                let e = &mut next[slot[i]];
+                e.pb += pb;
+                e.pnb += pnb;
             }
         };
-        for h in &beam {
+        for (hi, h) in beam.iter().enumerate() {
             let total = h.total();
             for (&c, &p) in cands.iter().zip(probs) {
                 let pnb = if c == h.last { h.pb * p } else { total * p };
                 if pnb > 0.0 {
-                    let cnode = cells.child(h.cnode, c);
-                    add(&mut next, cnode, c, 0.0, pnb);
+                    let mut k = kid[hi];
+                    while k != NIL && beam[k as usize].last != c {
+                        k = sib[k as usize];
+                    }
+                    if k == NIL {
+                        next.push(Hyp {
+                            cnode: PENDING,
+                            from: h.cnode,
+                            last: c,
+                            pb: 0.0,
+                            pnb,
+                        });
+                    } else {
+                        add(&mut next, &mut slot, k as usize, 0.0, pnb);
+                    }
                 }
             }
             // The prefix itself: a blank, or its last cell held.
@@ -357,10 +444,10 @@ pub(crate) fn search<R: CodeReader>(
             let pnb = if h.last == NO_CELL {
                 0.0
             } else {
-                h.pnb * frames.p(t, h.last)
+                h.pnb * row[h.last as usize & 63]
             };
             if pb + pnb > 0.0 {
-                add(&mut next, h.cnode, h.last, pb, pnb);
+                add(&mut next, &mut slot, hi, pb, pnb);
             }
         }
         let max = next.iter().map(Hyp::total).fold(0.0, f64::max);
@@ -379,27 +466,29 @@ pub(crate) fn search<R: CodeReader>(
         keep_top(&mut next, 2 * params.beam_width);
         // Only extensions into tree nodes that were not in the beam can
         // change the set of texts; otherwise the beam was merged already.
-        let extended = next
-            .iter()
-            .any(|h| !beam.iter().any(|b| b.cnode == h.cnode));
+        let extended = next.iter().any(|h| h.cnode == PENDING);
         if !extended {
             keep_top(&mut next, params.beam_width);
             std::mem::swap(&mut beam, &mut next);
             continue;
         }
-        // Run the reader on the new tree nodes among the survivors.
-        for h in &next {
+        // Put the new extensions among the survivors into the tree, and run
+        // the reader on the tree nodes that have none yet.
+        for h in next.iter_mut() {
+            if h.cnode != PENDING {
+                continue;
+            }
+            h.cnode = cells.child(h.from, h.last);
             let node = h.cnode as usize;
             if after.len() <= node {
                 after.resize_with(node + 1, || None);
             }
             if after[node].is_none() {
-                let (parent, c) = cells.nodes[node];
-                let Some((ptext, preader)) = &after[parent as usize] else {
+                let Some((ptext, preader)) = &after[h.from as usize] else {
                     continue;
                 };
                 let mut r = preader.clone();
-                let piece = r.push(Cell::from_mask(c));
+                let piece = r.push(Cell::from_mask(h.last));
                 let tnode = if piece.is_empty() {
                     *ptext
                 } else {
@@ -410,14 +499,24 @@ pub(crate) fn search<R: CodeReader>(
         }
         if merge {
             by_key.clear();
+            keys.clear();
             merged.clear();
+            // Few survivors: a linear search of the keys is cheaper than
+            // hashing them (same result: the first of each key collects).
+            let linear = next.len() <= LINEAR_MERGE;
             for h in &next {
                 let Some((tnode, r)) = &after[h.cnode as usize] else {
                     continue;
                 };
-                match by_key.entry((*tnode, r.state(), h.last)) {
-                    std::collections::hash_map::Entry::Occupied(e) => {
-                        let m: &mut Hyp = &mut merged[*e.get()];
+                let key = (*tnode, r.state(), h.last);
+                let at = if linear {
+                    keys.iter().position(|k| *k == key)
+                } else {
+                    by_key.get(&key).copied()
+                };
+                match at {
+                    Some(i) => {
+                        let m: &mut Hyp = &mut merged[i];
                         if h.total() > m.total() {
                             // Report the dominant cell path.
                             m.cnode = h.cnode;
@@ -425,8 +524,12 @@ pub(crate) fn search<R: CodeReader>(
                         m.pb += h.pb;
                         m.pnb += h.pnb;
                     }
-                    std::collections::hash_map::Entry::Vacant(e) => {
-                        e.insert(merged.len());
+                    None => {
+                        if linear {
+                            keys.push(key);
+                        } else {
+                            by_key.insert(key, merged.len());
+                        }
                         merged.push(*h);
                     }
                 }
@@ -501,4 +604,97 @@ pub(crate) fn greedy(log_probs: &ndarray::ArrayView2<f32>) -> Vec<Cell> {
         prev = best;
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::frames::{prune, BLANK, N_CLASSES};
+    use super::super::search_reference::search_reference;
+    use super::*;
+    use ndarray::Array2;
+    use rand::{Rng, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    /// Random `[n_frames, 65]` log-probabilities of three kinds of frame:
+    /// near-certain blanks, factorised cell spikes (six Bernoulli dots, as
+    /// the network's head), and uniform rows (which make exact ties between
+    /// hypotheses, the hardest case for reproducing the reference's order).
+    fn random_frames(rng: &mut ChaCha8Rng, n: usize) -> Array2<f32> {
+        let mut a = Array2::<f32>::zeros((n, N_CLASSES));
+        for t in 0..n {
+            let kind: f64 = rng.gen();
+            if kind < 0.1 {
+                a.row_mut(t).fill(-(N_CLASSES as f32).ln());
+                continue;
+            }
+            let blank = if kind < 0.6 {
+                1.0 - 10f64.powf(rng.gen_range(-6.0..-1.0))
+            } else {
+                rng.gen_range(0.01..0.7)
+            };
+            let mut dots = [0f64; 6];
+            for d in dots.iter_mut() {
+                *d = if rng.gen_bool(0.2) {
+                    rng.gen_range(0.3..0.7)
+                } else if rng.gen_bool(0.5) {
+                    0.95
+                } else {
+                    0.05
+                };
+            }
+            for m in 0..64usize {
+                let mut p = 1.0 - blank;
+                for (k, &d) in dots.iter().enumerate() {
+                    p *= if m & (1 << k) != 0 { d } else { 1.0 - d };
+                }
+                a[[t, m]] = p.max(1e-30).ln() as f32;
+            }
+            a[[t, BLANK]] = blank.ln() as f32;
+        }
+        a
+    }
+
+    fn same(fast: &[Found], plain: &[Found]) -> bool {
+        fast.len() == plain.len()
+            && fast.iter().zip(plain).all(|(a, b)| {
+                a.cells == b.cells
+                    && a.text == b.text
+                    && a.log_score.to_bits() == b.log_score.to_bits()
+            })
+    }
+
+    #[test]
+    fn fast_search_reproduces_the_reference_search_exactly() {
+        let table = crate::braille::CodeTable::builtin("en").unwrap();
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        for case in 0..120 {
+            let n = rng.gen_range(1..160);
+            let lp = random_frames(&mut rng, n);
+            let params = BeamParams {
+                beam_width: [1, 2, 3, 5, 16, 40][rng.gen_range(0..6)],
+                min_cell_prob: [0.0, 1e-4, 1e-3, 0.05][rng.gen_range(0..4)],
+                max_cells_per_frame: [1, 3, 8, 64][rng.gen_range(0..4)],
+                blank_skip: [0.99, 0.999, 1.0][rng.gen_range(0..3)],
+                score_margin: [4.0, 30.0][rng.gen_range(0..2)],
+                ..BeamParams::default()
+            };
+            let pruned = prune(
+                &lp.view(),
+                params.min_cell_prob,
+                params.max_cells_per_frame,
+                params.blank_skip,
+            )
+            .unwrap();
+            let merge = rng.gen_bool(0.7);
+            let fast = search(&pruned, NoReader, &params, false, false);
+            let plain = search_reference(&pruned, NoReader, &params, false, false);
+            assert!(same(&fast, &plain), "case {case}, cells only, {params:?}");
+            let fast = search(&pruned, table.reader(), &params, merge, true);
+            let plain = search_reference(&pruned, table.reader(), &params, merge, true);
+            assert!(
+                same(&fast, &plain),
+                "case {case}, with reader, merge {merge}, {params:?}"
+            );
+        }
+    }
 }

@@ -292,6 +292,46 @@ pub struct FineTune<'a> {
     pub refit_prep: bool,
 }
 
+impl FineTune<'_> {
+    /// Checks that `config`'s architecture options (`hidden`, `layers`,
+    /// `bidirectional`) agree with the model's network: an
+    /// [`Error::Config`] naming the option otherwise. [`fine_tune`] runs it
+    /// first; call it yourself to refuse options before loading any data.
+    pub fn check(&self, config: &TrainConfig) -> Result<()> {
+        let from = self;
+        let have = from.model.network.config();
+        for (name, want, got) in [
+            ("hidden", config.hidden, have.hidden),
+            ("layers", config.layers, have.layers),
+        ] {
+            if want != got {
+                return Err(Error::config(
+                    name,
+                    format!(
+                        "is {want} but the model being fine-tuned ({}) has {got}: leave the option \
+                         out, or give {got}",
+                        from.name
+                    ),
+                ));
+            }
+        }
+        if config.bidirectional != have.bidirectional {
+            let dir = |b: bool| if b { "bi" } else { "uni" };
+            return Err(Error::config(
+                "direction",
+                format!(
+                    "is {} but the model being fine-tuned ({}) is {}: leave the option out, or give {}",
+                    dir(config.bidirectional),
+                    from.name,
+                    dir(have.bidirectional),
+                    dir(have.bidirectional)
+                ),
+            ));
+        }
+        Ok(())
+    }
+}
+
 /// Fine-tuning: [`train`] started from `from.model` instead of random
 /// weights, with a fresh Adam state and the usual schedule (pass
 /// [`FINE_TUNE_LR`] or another low peak in `config.lr`). `config.hidden`,
@@ -316,35 +356,7 @@ pub fn fine_tune(
     resume: bool,
     on_event: impl FnMut(Event) -> ControlFlow<()>,
 ) -> Result<Outcome> {
-    let have = from.model.network.config();
-    for (name, want, got) in [
-        ("hidden", config.hidden, have.hidden),
-        ("layers", config.layers, have.layers),
-    ] {
-        if want != got {
-            return Err(Error::config(
-                name,
-                format!(
-                    "is {want} but the model being fine-tuned ({}) has {got}: leave the option \
-                     out, or give {got}",
-                    from.name
-                ),
-            ));
-        }
-    }
-    if config.bidirectional != have.bidirectional {
-        let dir = |b: bool| if b { "bi" } else { "uni" };
-        return Err(Error::config(
-            "direction",
-            format!(
-                "is {} but the model being fine-tuned ({}) is {}: leave the option out, or give {}",
-                dir(config.bidirectional),
-                from.name,
-                dir(have.bidirectional),
-                dir(have.bidirectional)
-            ),
-        ));
-    }
+    from.check(config)?;
     run(
         config,
         Some(from),
@@ -485,6 +497,10 @@ fn run(
     schedule.warmup = schedule.warmup.min(total / 10 + 1);
 
     let ckpt_path = checkpoint_path(out);
+    // Temporaries left by a run killed while writing are never read, but
+    // would pile up: remove them (one run at a time writes these files).
+    crate::fsutil::remove_stale_temps(out);
+    crate::fsutil::remove_stale_temps(&ckpt_path);
     let mut net = match &from {
         Some(f) => f.model.network.clone(),
         None => Network::new(gru, config.seed)?,
@@ -495,8 +511,10 @@ fn run(
     let mut stale = 0usize;
     let mut seconds_before = 0.0;
     if resume {
-        let text = std::fs::read_to_string(&ckpt_path)
-            .map_err(|e| Error::io("cannot read the checkpoint", &ckpt_path, e))?;
+        let text = crate::fsutil::read_utf8(
+            &ckpt_path,
+            "a checkpoint is UTF-8 JSON written by tactread: start again without --resume",
+        )?;
         let ck: Checkpoint = serde_json::from_str(&text).map_err(|e| Error::Format {
             path: ckpt_path.clone(),
             expected: format!("{CKPT_FORMAT} version 1"),
@@ -584,8 +602,14 @@ fn run(
     };
 
     let mut history = Vec::new();
+    // The model file is written before the checkpoint, so a run killed
+    // between the two leaves a model one epoch ahead of its checkpoint:
+    // only a model of the checkpoint's best epoch is kept (the epoch after
+    // is run again, and saves its model again if it is still the best).
     let mut best_model: Option<Model> = if resume && out.exists() {
-        Model::load(out).ok()
+        Model::load(out)
+            .ok()
+            .filter(|m| best.as_ref().map(|b| b.0) == Some(m.training.best_epoch))
     } else {
         None
     };
@@ -668,12 +692,27 @@ fn run(
             break;
         }
     }
-    let mut model = best_model.ok_or_else(|| {
-        Error::config(
-            "epochs",
-            "no epoch finished (the time limit was reached first): allow more time",
-        )
-    })?;
+    let mut model = match (best_model, &best) {
+        (Some(m), _) => m,
+        (None, Some((epoch, _, _))) => {
+            return Err(Error::Mismatch {
+                what: format!("model file {}", out.display()),
+                expected: format!(
+                    "the model of epoch {epoch}, the best in {}",
+                    ckpt_path.display()
+                ),
+                got: "another model or none".into(),
+                hint: "resume with more --epochs, or start again with --force (without --resume)"
+                    .into(),
+            })
+        }
+        (None, None) => {
+            return Err(Error::config(
+                "epochs",
+                "no epoch finished (the time limit was reached first): allow more time",
+            ))
+        }
+    };
     // Record the final epoch count and time in the summary of the best model.
     if let Some(b) = &best {
         model.training = summary_for(epoch, b, seconds_before + started.elapsed().as_secs_f64());
@@ -930,6 +969,69 @@ mod tests {
         other.hidden = 10;
         let err = train(&other, &train_set, &val, &table, "toy", &b, true, go).unwrap_err();
         assert!(matches!(err, Error::Mismatch { .. }), "{err}");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    /// A run killed after writing a better model but before its checkpoint
+    /// leaves the model one epoch ahead. Reproduced by putting back the
+    /// previous epoch's checkpoint: resuming runs that epoch again and ends
+    /// as the uninterrupted run; with no epoch left to run it is an error,
+    /// not a model labelled with the wrong epoch.
+    #[test]
+    fn model_ahead_of_its_checkpoint_is_run_again() {
+        let (train_set, val, table) = toy_data();
+        let dir = std::env::temp_dir().join(format!("tactread-train-ahead-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).unwrap();
+        let (a, b) = (dir.join("a.json"), dir.join("b.json"));
+        let go = |_: Event| ControlFlow::Continue(());
+        let stop_at = |n: usize| {
+            move |e: Event| match e {
+                Event::Epoch { epoch, .. } if epoch == n => ControlFlow::Break(()),
+                _ => ControlFlow::Continue(()),
+            }
+        };
+        train(&config(3), &train_set, &val, &table, "toy", &a, false, go).unwrap();
+        train(
+            &config(3),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &b,
+            false,
+            stop_at(1),
+        )
+        .unwrap();
+        let ckpt_1 = std::fs::read(checkpoint_path(&b)).unwrap();
+        train(
+            &config(3),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &b,
+            true,
+            stop_at(2),
+        )
+        .unwrap();
+        assert_eq!(
+            Model::load(&b).unwrap().training.best_epoch,
+            2,
+            "the scenario needs epoch 2 to be the best so far"
+        );
+        std::fs::write(checkpoint_path(&b), &ckpt_1).unwrap();
+
+        // No epoch left to run (--epochs 1): refused.
+        let err = train(&config(1), &train_set, &val, &table, "toy", &b, true, go).unwrap_err();
+        assert!(matches!(err, Error::Mismatch { .. }), "{err}");
+        assert!(err.to_string().contains("model of epoch 1"), "{err}");
+
+        // Resumed to the end: the uninterrupted run's model.
+        train(&config(3), &train_set, &val, &table, "toy", &b, true, go).unwrap();
+        let (ma, mb) = (Model::load(&a).unwrap(), Model::load(&b).unwrap());
+        assert_eq!(ma.training.best_epoch, mb.training.best_epoch);
+        assert!(ma.network == mb.network, "resumed model differs");
         std::fs::remove_dir_all(&dir).unwrap();
     }
 
