@@ -25,6 +25,7 @@
 //! | simulated recordings from text | [`simulate`] |
 //! | alignment, accuracies, calibration, bootstrap intervals, comparisons | [`metrics`] |
 //! | HTML report and recording view (SVG) | [`report`] |
+//! | streaming: raw frames in, final words out, bounded memory | [`stream`] |
 //!
 //! ## Example: text to cells and back
 //!
@@ -48,6 +49,7 @@ pub mod prep;
 pub mod recording;
 pub mod report;
 pub mod simulate;
+pub mod stream;
 mod text_file;
 pub mod train;
 

@@ -33,8 +33,9 @@ pub struct Args {
     /// embedded default model (hex24 fingertip; en, de, fr, es; a file called
     /// `default` is read as `./default`).
     model: PathBuf,
-    /// Recording manifests, or folders of them, to read.
-    #[arg(required_unless_present = "list")]
+    /// Recording manifests, or folders of them, to read (with --stream:
+    /// one manifest, or none to read CSV frame rows from stdin).
+    #[arg(required_unless_present_any = ["list", "stream"])]
     recordings: Vec<PathBuf>,
     /// A file listing recording manifests, one per line (`#` starts a
     /// comment line); read after the RECORDINGS.
@@ -67,6 +68,14 @@ pub struct Args {
     /// confidence; or JSON lines, one compact object per recording.
     #[arg(long, value_enum, default_value_t = Format::Text)]
     format: Format,
+    /// Stream: read frames as they arrive and print each word as soon as
+    /// it is final (unidirectional models; JSON output is one object per
+    /// word and line).
+    #[arg(long)]
+    stream: bool,
+    /// With --stream: show the running partial reading on stderr.
+    #[arg(long, requires = "stream")]
+    partial: bool,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
@@ -83,6 +92,19 @@ pub(crate) const CAUTION: &str =
 
 /// Run `tactread decode`.
 pub fn run(args: Args) -> Result<()> {
+    if args.stream {
+        return super::decode_stream::run(super::decode_stream::Options {
+            json: args.format != Format::Text,
+            model: args.model,
+            recordings: args.recordings,
+            lang: args.lang,
+            beam: args.beam,
+            lexicon: args.lexicon,
+            weights: args.weights,
+            partial: args.partial,
+            listed: args.list.is_some() || args.jobs.is_some(),
+        });
+    }
     if args.jobs == Some(0) {
         return Err(Error::config(
             "--jobs",

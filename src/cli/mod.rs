@@ -10,6 +10,7 @@ use tactread::Result;
 mod cells;
 mod compare;
 mod decode;
+mod decode_stream;
 mod demo;
 mod evaluate;
 mod inspect;

@@ -14,6 +14,8 @@
 //!   comes with per-cell dot probabilities, alternative patterns and
 //!   per-character alternatives ([`Reading`]).
 //! * [`cell_evidence`]: those per-cell figures for any cell sequence.
+//! * [`WordStream`]: the same search fed one frame at a time, committing
+//!   words as soon as they are final (the commit rule is in its docs).
 //!
 //! ## Per-cell evidence, defined
 //!
@@ -55,9 +57,11 @@ mod frames;
 mod search;
 #[cfg(test)]
 mod search_reference;
+mod stream;
 
 pub use frames::{BLANK, N_CLASSES};
 pub use search::BeamParams;
+pub use stream::{CommitJob, CommitRule, StreamParams, StreamWord, WordFinisher, WordStream};
 
 pub(crate) use align::span_log_likelihood;
 pub(crate) use frames::Pruned;

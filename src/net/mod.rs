@@ -23,6 +23,7 @@ mod optim;
 
 pub use ctc::{ctc_loss, CtcLoss};
 pub use gru::{GruConfig, GruStack, GruState};
+pub(crate) use head::pattern_log_probs_row;
 pub use head::{dot_probs, pattern_log_probs, BLANK, N_CLASSES, N_LOGITS};
 pub use model::{
     Architecture, FineTunedFrom, Model, SensorSummary, TrainingSummary, MODEL_FORMAT, MODEL_VERSION,
