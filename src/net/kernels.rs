@@ -1080,6 +1080,54 @@ mod timing {
     use ndarray::Array2;
     use std::time::Instant;
 
+    /// Timing of `gemm_acc` on the training shapes against
+    /// `general_mat_mul` (run with `--release -- --ignored --nocapture`).
+    #[test]
+    #[ignore]
+    fn gemm_acc_vs_general_mat_mul() {
+        // (m, n, k, a transposed): input projections, weight gradients
+        // (depth = 32 steps x 32 sequences), input gradient.
+        for &(m, n, k, tr) in &[
+            (1024usize, 384usize, 24usize, false),
+            (1024, 384, 128, false),
+            (128, 384, 1024, true),
+            (24, 384, 1024, true),
+            (1024, 128, 384, false),
+        ] {
+            let a = if tr {
+                Array2::<f32>::from_shape_fn((k, m), |(i, j)| ((i * 7 + j) % 13) as f32 * 0.01)
+            } else {
+                Array2::<f32>::from_shape_fn((m, k), |(i, j)| ((i * 7 + j) % 13) as f32 * 0.01)
+            };
+            let av = if tr { a.t() } else { a.view() };
+            let b = Array2::<f32>::from_shape_fn((k, n), |(i, j)| ((i * 3 + j) % 11) as f32 * 0.01);
+            let mut c1 = Array2::<f32>::zeros((m, n));
+            let mut c2 = Array2::<f32>::zeros((m, n));
+            let reps = 50;
+            let (mut t1, mut t2) = (Vec::new(), Vec::new());
+            for _ in 0..7 {
+                let s = Instant::now();
+                for _ in 0..reps {
+                    gemm(av, b.view(), 1.0, &mut c1.view_mut());
+                }
+                t1.push(s.elapsed().as_secs_f64());
+                let s = Instant::now();
+                for _ in 0..reps {
+                    general_mat_mul(1.0, &av, &b, 1.0, &mut c2);
+                }
+                t2.push(s.elapsed().as_secs_f64());
+            }
+            t1.sort_by(f64::total_cmp);
+            t2.sort_by(f64::total_cmp);
+            let flop = 2.0 * (m * k * n * reps) as f64;
+            println!(
+                "{m}x{n}x{k} a^T={tr}: gemm_acc {:.1} GFLOP/s, general_mat_mul {:.1} GFLOP/s",
+                flop / t1[3] / 1e9,
+                flop / t2[3] / 1e9
+            );
+        }
+    }
+
     /// Interleaved A/B timing of the per-step product against
     /// `general_mat_mul` (run with `--release -- --ignored --nocapture`).
     #[test]
