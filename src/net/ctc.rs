@@ -90,8 +90,31 @@ enum Scaled {
 /// smallest normal f64, 2.2e-308, so products of two stay normal).
 const TINY: f64 = 1e-150;
 
+thread_local! {
+    /// Each thread's buffers for [`ctc_scaled`] (emissions, alpha, beta),
+    /// reused across calls: fresh ones of this size (hundreds of KiB)
+    /// would be mapped and zeroed by the operating system at every call.
+    static BUFFERS: std::cell::RefCell<[Vec<f64>; 3]> = const {
+        std::cell::RefCell::new([Vec::new(), Vec::new(), Vec::new()])
+    };
+}
+
 /// The rescaled forward-backward of [`ctc_loss`] (inputs already checked).
 fn ctc_scaled(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> Scaled {
+    BUFFERS
+        .with_borrow_mut(|[y, alpha, beta]| ctc_scaled_in(log_probs, target, blank, y, alpha, beta))
+}
+
+/// [`ctc_scaled`] with its three `[T, S]` buffers passed in (any length
+/// and contents on entry).
+fn ctc_scaled_in(
+    log_probs: ArrayView2<f32>,
+    target: &[usize],
+    blank: usize,
+    y: &mut Vec<f64>,
+    alpha: &mut Vec<f64>,
+    beta: &mut Vec<f64>,
+) -> Scaled {
     let (t_len, c) = log_probs.dim();
     let s_len = 2 * target.len() + 1;
     let label = |s: usize| {
@@ -105,7 +128,8 @@ fn ctc_scaled(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> Sca
         .map(|s| s >= 2 && s % 2 == 1 && label(s) != label(s - 2))
         .collect();
     // Emissions y_t(l'_s) / max_s y_t(l'_s), `[T, S]`, and the shifts.
-    let mut y = vec![0.0f64; t_len * s_len];
+    y.clear();
+    y.resize(t_len * s_len, 0.0);
     let mut shift = vec![0.0f64; t_len];
     for t in 0..t_len {
         let row = log_probs.row(t);
@@ -120,7 +144,8 @@ fn ctc_scaled(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> Sca
         }
     }
     // Forward: alpha rescaled to sum 1 at each frame.
-    let mut alpha = vec![0.0f64; t_len * s_len];
+    alpha.clear();
+    alpha.resize(t_len * s_len, 0.0);
     let mut log_p = 0.0f64;
     alpha[0] = y[0];
     if s_len > 1 {
@@ -161,7 +186,8 @@ fn ctc_scaled(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> Sca
     }
     log_p += end.ln();
     // Backward: beta (excluding frame t's emission) rescaled likewise.
-    let mut beta = vec![0.0f64; t_len * s_len];
+    beta.clear();
+    beta.resize(t_len * s_len, 0.0);
     beta[(t_len - 1) * s_len + s_len - 1] = 1.0;
     if s_len > 1 {
         beta[(t_len - 1) * s_len + s_len - 2] = 1.0;

@@ -295,7 +295,7 @@ impl Network {
             .into_shape_with_order((t_len * b, width))
             .expect("standard layout reshapes");
         let z = self.head.logits(top);
-        let mut dz = Array2::<f32>::zeros((t_len * b, N_LOGITS));
+        let mut dz = pool.take2(t_len * b, N_LOGITS, true);
         let mut nll = 0.0;
         let mut skipped = 0;
         for (col, &i) in idx.iter().enumerate() {
@@ -322,6 +322,7 @@ impl Network {
         self.gru
             .backward(&tape, &d_top, &mut grads.gru, false, pool);
         pool.put3(d_top);
+        pool.put2(dz);
         tape.recycle(pool);
         (nll, skipped, grads)
     }
