@@ -1,8 +1,9 @@
 //! Numeric kernels shared by the network layers: a fast vectorisable
 //! exponential (and the sigmoid and tanh built on it), a matrix-vector
 //! product for batch-1 recurrences and a few-row product for batched
-//! recurrences (AVX-512 or AVX2 + FMA behind runtime detection, with a
-//! portable fallback), and thin wrappers over `general_mat_mul`.
+//! recurrences, and a blocked matrix product for the large products of
+//! training (all AVX-512 or AVX2 + FMA behind runtime detection, with a
+//! portable fallback: `general_mat_mul` for the matrix products).
 //!
 //! The exponential is the Cody-Waite range reduction with the degree-6
 //! polynomial of the Cephes `expf` (S. L. Moshier, Cephes Mathematical
