@@ -35,10 +35,11 @@
 //! ```
 #![deny(missing_docs)]
 
+pub mod batch;
 pub mod braille;
 pub mod decode;
 mod error;
-mod fsutil;
+pub mod fsutil;
 pub mod lexicon;
 pub mod metrics;
 pub mod net;

@@ -6,10 +6,11 @@
 use crate::{Error, Location, Result};
 use std::path::Path;
 
-/// Read `path` as UTF-8 text. A failed read is an [`Error::Io`]; invalid
+/// Read `path` as UTF-8 text (re-exported as `tactread::fsutil::read_utf8`).
+/// A failed read is an [`Error::Io`]; invalid
 /// UTF-8 is an [`Error::Input`] at its 1-based line whose message gives the
 /// 1-based byte within the line, then `hint` (how to fix it).
-pub(crate) fn read_utf8(path: &Path, hint: &str) -> Result<String> {
+pub fn read_utf8(path: &Path, hint: &str) -> Result<String> {
     let bytes = std::fs::read(path).map_err(|e| Error::io("cannot read", path, e))?;
     String::from_utf8(bytes).map_err(|e| {
         let good = e.utf8_error().valid_up_to();

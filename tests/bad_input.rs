@@ -8,20 +8,14 @@
 //! Commands run in a scratch folder with relative paths, so messages read
 //! as a user sees them (`scan.csv line 4, ...`).
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
+mod common;
+
+use common::cli::{scratch, tactread_in};
+use std::path::Path;
 
 use tactread::net::{GruConfig, Model, Network, SensorSummary, TrainingSummary};
 use tactread::prep::{Grid, Prep};
 use tactread::Error;
-
-/// A fresh, empty scratch folder for one test.
-fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("tactread-bad-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
-}
 
 fn write(dir: &Path, name: &str, bytes: impl AsRef<[u8]>) {
     std::fs::write(dir.join(name), bytes).unwrap();
@@ -29,11 +23,7 @@ fn write(dir: &Path, name: &str, bytes: impl AsRef<[u8]>) {
 
 /// Run the binary in `dir`; returns (exit code, stderr).
 fn run(dir: &Path, args: &[&str]) -> (i32, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .unwrap();
+    let out = tactread_in(dir, args);
     let stderr = String::from_utf8(out.stderr).unwrap();
     assert!(!stderr.contains("panicked"), "{args:?} panicked:\n{stderr}");
     (out.status.code().unwrap_or(-1), stderr)
@@ -119,8 +109,9 @@ fn row_r01_truncated_csv() {
         &["inspect", "scan.json"],
         1,
         "error: scan.csv line 3, field `taxel_1`: data row 2: missing value: the row has 2 \
-         values, the header has 3 columns (if this is the last line, the file may have been cut \
-         short)",
+         values, the header has 3 columns, and the file ends inside this row without a line \
+         break: the file was cut short; copy it again from its source, or delete the unfinished \
+         last line",
     );
 }
 
@@ -310,7 +301,7 @@ fn row_r11_invalid_utf8_in_code_table() {
         &d,
         &["cells", "--lang", "./code.txt", "tea"],
         1,
-        "error: ./code.txt line 3: the file is not UTF-8 text: save it as UTF-8",
+        "error: ./code.txt line 3: invalid UTF-8 at byte 8 of the line: save the file as UTF-8",
     );
 }
 
@@ -567,8 +558,7 @@ fn row_r25_csv_row_with_too_few_values() {
         &["inspect", "scan.json"],
         1,
         "error: scan.csv line 3, field `taxel_1`: data row 2: missing value: the row has 2 \
-         values, the header has 3 columns (if this is the last line, the file may have been cut \
-         short)",
+         values, the header has 3 columns: give every column a value, or drop the row",
     );
 }
 
@@ -1003,6 +993,150 @@ fn row_r49_sensor_file_with_overlapping_taxels() {
         1,
         "error: ./sensor.json, field `layout`: taxels 1 and 2 sit at the same place [1.5, 0.0]: \
          move one",
+    );
+}
+
+// ---- Invalid UTF-8 in the other files tactread reads -------------------
+
+#[test]
+fn row_r50_invalid_utf8_in_dataset_index() {
+    let d = scratch("r50");
+    std::fs::create_dir_all(d.join("data")).unwrap();
+    write(&d, "data/index.json", b"{\"format\": \"\xff\"}\n");
+    fails(
+        &d,
+        &["train", "--data", "data", "--out", "m.json"],
+        1,
+        "error: data/index.json line 1: invalid UTF-8 at byte 13 of the line: a dataset index \
+         is UTF-8 JSON (see docs/dataset-format.md): save it as UTF-8",
+    );
+}
+
+#[test]
+fn row_r51_invalid_utf8_in_metrics_file() {
+    let d = scratch("r51");
+    write(
+        &d,
+        "a.json",
+        b"{\"format\": \"tactread-metrics\",\n\"label\": \"caf\xe9\"}\n",
+    );
+    write(&d, "b.json", "{}");
+    fails(
+        &d,
+        &["compare", "a.json", "b.json"],
+        1,
+        "error: a.json line 2: invalid UTF-8 at byte 14 of the line: a metrics file is UTF-8 \
+         JSON written by `tactread evaluate --json`: write it again",
+    );
+}
+
+#[test]
+fn row_r52_invalid_utf8_in_checkpoint() {
+    let d = scratch("r52");
+    let (code, err) = run(
+        &d,
+        &[
+            "simulate", "dataset", "--lines", "4", "--preset", "clean", "--lang", "en", "--jobs",
+            "1", "--out", "data",
+        ],
+    );
+    assert_eq!(code, 0, "{err}");
+    write(&d, "m.json.ckpt", b"{\"format\": \"\xff\"}");
+    // The checkpoint is read once the data are loaded, so the error is the
+    // line after the one reporting the loaded recordings.
+    let (code, err) = run(
+        &d,
+        &[
+            "train", "--data", "data", "--out", "m.json", "--resume", "--hidden", "4", "--layers",
+            "1",
+        ],
+    );
+    assert_eq!(
+        err.lines().last(),
+        Some(
+            "error: m.json.ckpt line 1: invalid UTF-8 at byte 13 of the line: a checkpoint is \
+             UTF-8 JSON written by tactread: start again without --resume"
+        ),
+        "{err}"
+    );
+    assert_eq!(err.lines().count(), 2, "{err}");
+    assert_eq!(code, 1);
+}
+
+#[test]
+fn row_r53_invalid_utf8_in_weights_file() {
+    let d = scratch("r53");
+    three_taxel_recording(&d);
+    write(&d, "model.json", model_json(3));
+    write(&d, "w.json", b"{\n  \"lm_weight\": 1.0, \xff\n}\n");
+    fails(
+        &d,
+        &["decode", "model.json", "scan.json", "--weights", "w.json"],
+        1,
+        "error: w.json line 2: invalid UTF-8 at byte 21 of the line: a weights file is UTF-8 \
+         JSON written by `tactread lexicon tune`: write it again",
+    );
+}
+
+#[test]
+fn row_r54_invalid_utf8_in_simulator_text_file() {
+    let d = scratch("r54");
+    write(&d, "line.txt", b"caf\xe9 at 9\n");
+    fails(
+        &d,
+        &["simulate", "--text-file", "line.txt", "--out", "x.json"],
+        1,
+        "error: line.txt line 1: invalid UTF-8 at byte 4 of the line: save the file as UTF-8",
+    );
+}
+
+// ---- Outputs ------------------------------------------------------------
+
+#[test]
+fn row_r55_output_exists() {
+    let d = scratch("r55");
+    write(&d, "words.txt", "tea\n");
+    write(&d, "w.lex", "keep me");
+    fails(
+        &d,
+        &["lexicon", "build", "words.txt", "--out", "w.lex"],
+        4,
+        "error: refusing to write w.lex: the file exists: pass --force to replace it, or choose \
+         another --out",
+    );
+    assert_eq!(std::fs::read(d.join("w.lex")).unwrap(), b"keep me");
+}
+
+#[test]
+fn row_r56_output_is_an_input() {
+    let d = scratch("r56");
+    write(&d, "words.txt", "tea\n");
+    fails(
+        &d,
+        &[
+            "lexicon",
+            "build",
+            "words.txt",
+            "--out",
+            "./words.txt",
+            "--force",
+        ],
+        4,
+        "error: refusing to write ./words.txt: it is words.txt, an input of this command: choose \
+         another --out (--force never writes over an input)",
+    );
+    assert_eq!(std::fs::read(d.join("words.txt")).unwrap(), b"tea\n");
+}
+
+#[test]
+fn row_r57_resume_without_a_checkpoint() {
+    let d = scratch("r57");
+    fails(
+        &d,
+        &["train", "--data", "data", "--out", "m.json", "--resume"],
+        2,
+        "error: invalid --resume: m.json.ckpt does not exist, so there is no interrupted run of \
+         m.json to continue: check --out, or start the run without --resume",
     );
 }
 

@@ -1,33 +1,9 @@
 //! Tests of the built binary: each runs `tactread` as a user would (arguments,
 //! standard input, exit codes, messages on stderr).
 
-use std::io::Write;
-use std::process::{Command, Output, Stdio};
+mod common;
 
-fn tactread(args: &[&str], stdin: Option<&str>) -> Output {
-    let mut child = Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("the binary runs");
-    {
-        let mut input = child.stdin.take().unwrap();
-        if let Some(text) = stdin {
-            input.write_all(text.as_bytes()).unwrap();
-        }
-    }
-    child.wait_with_output().unwrap()
-}
-
-fn stdout(o: &Output) -> String {
-    String::from_utf8(o.stdout.clone()).unwrap()
-}
-
-fn stderr(o: &Output) -> String {
-    String::from_utf8(o.stderr.clone()).unwrap()
-}
+use common::cli::{stderr, stdout, tactread_with_stdin as tactread};
 
 fn ok(args: &[&str], stdin: Option<&str>) -> String {
     let o = tactread(args, stdin);

@@ -2,15 +2,10 @@
 // prints for good recordings (text and --json), and how bad recordings end
 // (one-line error naming file, row and column; exit code; no panic).
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
-fn tactread(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .output()
-        .expect("the tactread binary runs")
-}
+use common::cli::{scratch, tactread};
+use std::path::{Path, PathBuf};
 
 fn compat(rel: &str) -> String {
     Path::new(env!("CARGO_MANIFEST_DIR"))
@@ -18,13 +13,6 @@ fn compat(rel: &str) -> String {
         .join(rel)
         .display()
         .to_string()
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join(format!("cli-recording-{name}"));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
 }
 
 /// A recording `bad.json` + `bad.csv` with a NaN in data row 3, column taxel_1.

@@ -598,12 +598,9 @@ fn every_builtin_word_is_written_by_its_pack() {
 // ---------------------------------------------------------------------------
 // `tactread lexicon`, through the built binary.
 
-fn tactread(args: &[&str]) -> std::process::Output {
-    std::process::Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .output()
-        .unwrap()
-}
+mod common;
+
+use common::cli::tactread;
 
 #[test]
 fn cli_lexicon_build_info_and_errors() {

@@ -1,22 +1,14 @@
 //! `tactread demo` through the built binary: the results table, the caution
 //! and the HTML report, and the refusal to overwrite a report.
 
-use std::process::Command;
+mod common;
 
-fn tmpdir(name: &str) -> std::path::PathBuf {
-    let d = std::env::temp_dir().join(format!("tactread-demo-test-{}-{name}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    d
-}
+use common::cli::{s, scratch, tactread};
 
 #[test]
 fn demo_prints_table_and_writes_report() {
-    let out = tmpdir("report");
-    let run = Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(["demo", "--limit", "1", "--out"])
-        .arg(&out)
-        .output()
-        .expect("run tactread");
+    let out = scratch("report");
+    let run = tactread(&["demo", "--limit", "1", "--out", s(&out)]);
     let stdout = String::from_utf8_lossy(&run.stdout);
     assert!(
         run.status.success(),
@@ -46,11 +38,7 @@ fn demo_prints_table_and_writes_report() {
     );
 
     // A second run refuses to overwrite without --force, and names the way out.
-    let again = Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(["demo", "--limit", "1", "--out"])
-        .arg(&out)
-        .output()
-        .expect("run tactread");
+    let again = tactread(&["demo", "--limit", "1", "--out", s(&out)]);
     assert!(!again.status.success());
     assert!(String::from_utf8_lossy(&again.stderr).contains("--force"));
     let _ = std::fs::remove_dir_all(&out);

@@ -4,29 +4,11 @@
 
 mod common;
 
+use common::cli::{s, scratch as temp_dir, tactread};
 use common::{synthetic_set, toy_recording};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 use tactread::metrics::{evaluate, EvalSettings};
 use tactread::recording::FramesKind;
-
-fn tactread(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .output()
-        .expect("the binary runs")
-}
-
-fn temp_dir(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tactread-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
 
 fn write_metrics(dir: &Path) -> (PathBuf, PathBuf, PathBuf) {
     let settings = EvalSettings {
@@ -308,4 +290,31 @@ fn evaluate_scores_a_dataset_and_writes_metrics_and_report() {
     assert!(!out.status.success());
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("nowhere"), "{err}");
+}
+
+/// A dataset in several languages: without `--lang` every recording is read
+/// with its own language's code table and lexicon (demo-data has one test
+/// recording in each of en, de, fr and es).
+#[test]
+fn evaluate_reads_each_recording_in_its_own_language() {
+    let dir = temp_dir("evaluate-langs");
+    let json = dir.join("m.json");
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let out = tactread(&[
+        "evaluate",
+        s(&root.join("models/default.json")),
+        s(&root.join("demo-data")),
+        "--json",
+        s(&json),
+        "--resamples",
+        "50",
+        "--threads",
+        "1",
+    ]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{err}");
+    assert!(err.contains("in 4 languages: de, en, es, fr"), "{err}");
+    let eval = tactread::metrics::Evaluation::load(&json).unwrap();
+    assert_eq!(eval.recordings.len(), 4);
+    std::fs::remove_dir_all(&dir).unwrap();
 }

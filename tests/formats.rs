@@ -6,6 +6,9 @@
 // cross-checks of our readers and writers against general-purpose reference
 // implementations of the container formats (NumPy, the npyz crate).
 
+mod common;
+
+use common::cli::scratch;
 use ndarray::Array2;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -20,14 +23,6 @@ fn compat(rel: &str) -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR"))
         .join("tests/compat")
         .join(rel)
-}
-
-/// A fresh empty folder under the target directory, unique per test.
-fn scratch(name: &str) -> PathBuf {
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join(format!("formats-{name}"));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
-    dir
 }
 
 fn input_error(err: Error) -> (Location, String) {
@@ -591,4 +586,43 @@ fn numpy_reads_our_npy_files() {
     let taxels = parse(lines.next().unwrap());
     let ours: Vec<f64> = rec.frames.iter().map(|&v| f64::from(v)).collect();
     assert_eq!(taxels, ours);
+}
+
+/// The worked example of docs/model-format.md: the JSON there loads as a
+/// model, and one raw frame goes through preprocessing, the GRU and the
+/// head to the numbers the document works out by hand (the GRU and head
+/// equations are those of Cho et al. 2014 and the factorised head; the
+/// arithmetic was done by hand with a calculator).
+#[test]
+fn model_format_worked_example_loads_and_computes_as_documented() {
+    let doc =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/model-format.md"))
+            .unwrap();
+    let section = &doc[doc.find("## A worked example").unwrap()..];
+    let start = section.find("```json\n").unwrap() + "```json\n".len();
+    let end = start + section[start..].find("```").unwrap();
+    let model = tactread::net::Model::from_json(&section[start..end], Path::new("model-format.md"))
+        .unwrap();
+
+    let mut manifest = Manifest::new(SensorInfo::new(2, 40.0));
+    manifest.frames = "x.csv".into();
+    let rec = Recording {
+        manifest,
+        time_s: vec![0.0],
+        position_mm: None,
+        frames: Array2::from_shape_vec((1, 2), vec![210.0, 192.0]).unwrap(),
+    };
+    let x = model.prep.apply(&rec, "example").unwrap();
+    assert_eq!(x.dim(), (1, 2));
+    approx::assert_relative_eq!(x[[0, 0]], 1.0, epsilon = 1e-6);
+    approx::assert_relative_eq!(x[[0, 1]], 1.0, epsilon = 1e-6);
+
+    let z = model.network.logits_one(x.view()).unwrap();
+    approx::assert_relative_eq!(z[[0, 0]], 0.2377, epsilon = 1e-4);
+    for k in 1..7 {
+        approx::assert_relative_eq!(z[[0, k]], -0.2377, epsilon = 1e-4);
+    }
+    let lp = tactread::net::pattern_log_probs(z.view());
+    approx::assert_relative_eq!(lp[[0, tactread::net::BLANK]].exp(), 0.559, epsilon = 1e-3);
+    approx::assert_relative_eq!(lp[[0, 0]].exp(), 0.0135, epsilon = 1e-4);
 }

@@ -4,9 +4,11 @@
 //! and datasets read back with the recording reader. CLI cases run the
 //! built binary.
 
+mod common;
+
+use common::cli::{scratch, stderr, tactread_in};
 use ndarray::Array2;
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::path::Path;
 use tactread::recording::{Dataset, Recording, Split};
 use tactread::simulate::{
     encode_line, render_height_map, FaultLevel, PageGeometry, Preset, SensorSpec, SimConfig,
@@ -15,25 +17,6 @@ use tactread::simulate::{
 use tactread::{Cell, CodeTable, Error};
 
 // ---------------------------------------------------------------- helpers
-
-fn temp_dir(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tactread-sim-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
-fn tactread(args: &[&str], dir: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("the binary runs")
-}
-
-fn stderr(o: &Output) -> String {
-    String::from_utf8_lossy(&o.stderr).into_owned()
-}
 
 /// Centroids `[x, y]` (mm) and extents `[width, height]` (mm, counting
 /// samples above zero, each standing for one grid step) of the raised
@@ -359,7 +342,7 @@ fn empty_and_unencodable_text_are_named() {
 
 #[test]
 fn recording_saves_and_loads_back() {
-    let dir = temp_dir("save");
+    let dir = scratch("save");
     let sim = Simulator::new(SimConfig::default()).unwrap();
     let table = CodeTable::builtin("fr").unwrap();
     let rec = sim.simulate_text("Bac à 9 h 15", &table, 4).unwrap();
@@ -382,9 +365,10 @@ fn recording_saves_and_loads_back() {
 
 #[test]
 fn cli_same_seed_same_bytes() {
-    let dir = temp_dir("bytes");
+    let dir = scratch("bytes");
     for (name, seed) in [("a", "5"), ("b", "5"), ("c", "6")] {
-        let o = tactread(
+        let o = tactread_in(
+            &dir,
             &[
                 "simulate",
                 "Hide 3 overlooks Saltmere",
@@ -395,7 +379,6 @@ fn cli_same_seed_same_bytes() {
                 "--out",
                 &format!("{name}.json"),
             ],
-            &dir,
         );
         assert!(o.status.success(), "{}", stderr(&o));
     }
@@ -415,8 +398,8 @@ fn cli_same_seed_same_bytes() {
 
 #[test]
 fn cli_errors_name_the_problem() {
-    let dir = temp_dir("errors");
-    let o = tactread(&["simulate", "Gull ß rock", "--out", "x.json"], &dir);
+    let dir = scratch("errors");
+    let o = tactread_in(&dir, &["simulate", "Gull ß rock", "--out", "x.json"]);
     assert_eq!(o.status.code(), Some(1));
     let e = stderr(&o);
     assert!(
@@ -424,7 +407,7 @@ fn cli_errors_name_the_problem() {
         "{e}"
     );
 
-    let o = tactread(&["simulate", "", "--out", "x.json"], &dir);
+    let o = tactread_in(&dir, &["simulate", "", "--out", "x.json"]);
     assert_eq!(o.status.code(), Some(2));
     assert!(
         stderr(&o).contains("text") && stderr(&o).contains("empty"),
@@ -433,7 +416,8 @@ fn cli_errors_name_the_problem() {
     );
 
     std::fs::write(dir.join("lines.txt"), "Ferry at 9.15\n\nGull ß rock\n").unwrap();
-    let o = tactread(
+    let o = tactread_in(
+        &dir,
         &[
             "simulate",
             "dataset",
@@ -442,40 +426,40 @@ fn cli_errors_name_the_problem() {
             "--out",
             "ds",
         ],
-        &dir,
     );
     assert_eq!(o.status.code(), Some(1));
     let e = stderr(&o);
     assert!(e.contains("lines.txt line 3") && e.contains("'ß'"), "{e}");
     assert!(!dir.join("ds").exists(), "nothing written on bad input");
 
-    let o = tactread(
-        &["simulate", "Ferry", "--sensor", "nosuch", "--out", "x.json"],
+    let o = tactread_in(
         &dir,
+        &["simulate", "Ferry", "--sensor", "nosuch", "--out", "x.json"],
     );
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("hex24"), "{}", stderr(&o));
 
     // Refuses to overwrite without --force.
     let args = ["simulate", "Ferry", "--rate", "100", "--out", "x.json"];
-    assert!(tactread(&args, &dir).status.success());
-    let o = tactread(&args, &dir);
+    assert!(tactread_in(&dir, &args).status.success());
+    let o = tactread_in(&dir, &args);
     assert_eq!(o.status.code(), Some(4));
     assert!(stderr(&o).contains("--force"), "{}", stderr(&o));
     let mut forced = args.to_vec();
     forced.push("--force");
-    assert!(tactread(&forced, &dir).status.success());
+    assert!(tactread_in(&dir, &forced).status.success());
     let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
 fn cli_sensor_by_name_anywhere_and_by_path() {
-    let dir = temp_dir("sensor");
+    let dir = scratch("sensor");
     let mut s = SensorSpec::builtin("pad4x3").unwrap();
     s.name = "mypad".into();
     s.faults.dead_taxels = vec![5];
     std::fs::write(dir.join("mypad.json"), s.to_json()).unwrap();
-    let o = tactread(
+    let o = tactread_in(
+        &dir,
         &[
             "simulate",
             "Tarn",
@@ -484,7 +468,6 @@ fn cli_sensor_by_name_anywhere_and_by_path() {
             "--out",
             "p.json",
         ],
-        &dir,
     );
     assert!(o.status.success(), "{}", stderr(&o));
     let rec = Recording::load(&dir.join("p.json")).unwrap();
@@ -494,7 +477,8 @@ fn cli_sensor_by_name_anywhere_and_by_path() {
         rec.frames.column(5).iter().all(|&v| v == 0.0),
         "dead taxel 5 reads 0"
     );
-    let o = tactread(
+    let o = tactread_in(
+        &dir,
         &[
             "simulate",
             "Tarn",
@@ -504,7 +488,6 @@ fn cli_sensor_by_name_anywhere_and_by_path() {
             "s.json",
             "--no-position",
         ],
-        &dir,
     );
     assert!(o.status.success(), "{}", stderr(&o));
     let rec = Recording::load(&dir.join("s.json")).unwrap();
@@ -518,7 +501,7 @@ fn cli_sensor_by_name_anywhere_and_by_path() {
 /// a serial one.
 #[test]
 fn cli_dataset_reads_back_and_is_parallel_safe() {
-    let dir = temp_dir("dataset");
+    let dir = scratch("dataset");
     let common = [
         "simulate",
         "dataset",
@@ -540,7 +523,7 @@ fn cli_dataset_reads_back_and_is_parallel_safe() {
     for (out, jobs) in [("serial", "1"), ("parallel", "2")] {
         let mut args = common.to_vec();
         args.extend(["--out", out, "--jobs", jobs]);
-        let o = tactread(&args, &dir);
+        let o = tactread_in(&dir, &args);
         assert!(o.status.success(), "{}", stderr(&o));
     }
     let ds = Dataset::open(&dir.join("serial")).unwrap();
@@ -584,10 +567,10 @@ fn cli_dataset_reads_back_and_is_parallel_safe() {
     // A second run refuses, then --force replaces.
     let mut args = common.to_vec();
     args.extend(["--out", "serial"]);
-    let o = tactread(&args, &dir);
+    let o = tactread_in(&dir, &args);
     assert_eq!(o.status.code(), Some(4), "{}", stderr(&o));
     args.push("--force");
-    assert!(tactread(&args, &dir).status.success());
+    assert!(tactread_in(&dir, &args).status.success());
     assert_eq!(
         Dataset::open(&dir.join("serial")).unwrap().entries().len(),
         20
@@ -603,8 +586,9 @@ fn demo_data_matches_its_command() {
     assert!(readme.contains(
         "simulate dataset --lines 16 --lang all --split 0.5,0.25,0.25 \\\n    --rate 100 --speed 15..25 --seed 2024 --out demo-data --force"
     ));
-    let dir = temp_dir("demo");
-    let o = tactread(
+    let dir = scratch("demo");
+    let o = tactread_in(
+        &dir,
         &[
             "simulate",
             "dataset",
@@ -623,7 +607,6 @@ fn demo_data_matches_its_command() {
             "--out",
             "demo-data",
         ],
-        &dir,
     );
     assert!(o.status.success(), "{}", stderr(&o));
     let ours = Dataset::open(&root.join("demo-data")).unwrap();
@@ -662,12 +645,12 @@ fn demo_data_matches_its_command() {
 /// The word "dataset" can be embossed as the help says.
 #[test]
 fn cli_text_dataset_after_double_dash() {
-    let dir = temp_dir("word");
-    let o = tactread(
+    let dir = scratch("word");
+    let o = tactread_in(
+        &dir,
         &[
             "simulate", "--rate", "100", "--out", "x.json", "--", "dataset",
         ],
-        &dir,
     );
     assert!(o.status.success(), "{}", stderr(&o));
     let rec = Recording::load(&dir.join("x.json")).unwrap();

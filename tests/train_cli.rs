@@ -2,26 +2,9 @@
 //! dataset, one short training run, the model file it writes, and the
 //! errors a user meets (existing output, bad options, missing data).
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
-fn tactread(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tactread"))
-        .args(args)
-        .output()
-        .expect("the binary runs")
-}
-
-fn scratch(name: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("tactread-train-cli-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
-}
+use common::cli::{s, scratch, tactread};
 
 #[test]
 fn trains_a_small_model_and_reports_test_figures() {
@@ -103,5 +86,82 @@ fn bad_options_and_missing_data_are_clear_errors() {
     let out = tactread(&["train", "--data", s(&dir.join("nowhere")), "--out", s(&m)]);
     assert_ne!(out.status.code(), Some(0));
     assert!(String::from_utf8_lossy(&out.stderr).contains("nowhere"));
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
+fn a_dataset_in_several_languages_trains_one_model() {
+    // `simulate dataset` without --lang draws lines in all four builtin
+    // languages; each recording's text is written with its own code table
+    // (German `ß` exists in the de table only, for example).
+    let dir = scratch("multi");
+    let data = dir.join("data");
+    let out = tactread(&[
+        "simulate",
+        "dataset",
+        "--lines",
+        "24",
+        "--preset",
+        "clean",
+        "--seed",
+        "5",
+        "--jobs",
+        "1",
+        "--out",
+        s(&data),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let index: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(data.join("index.json")).unwrap()).unwrap();
+    let mut langs: Vec<String> = index["recordings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| r["lang"].as_str().unwrap().to_string())
+        .collect();
+    langs.sort();
+    langs.dedup();
+    assert!(
+        langs.len() > 1,
+        "the dataset should mix languages: {langs:?}"
+    );
+
+    let model = dir.join("m.json");
+    let out = tactread(&[
+        "train",
+        "--data",
+        s(&data),
+        "--out",
+        s(&model),
+        "--epochs",
+        "1",
+        "--hidden",
+        "8",
+        "--layers",
+        "1",
+        "--batch",
+        "8",
+        "--threads",
+        "1",
+        "--step-mm",
+        "1.0",
+    ]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{err}");
+    assert!(err.contains(&langs.join(", ")), "{err}");
+    let v: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&model).unwrap()).unwrap();
+    let listed: Vec<String> = v["training"]["languages"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|l| l.as_str().unwrap().to_string())
+        .collect();
+    assert_eq!(listed, langs);
+    assert!(langs.contains(&v["lang"].as_str().unwrap().to_string()));
     std::fs::remove_dir_all(&dir).unwrap();
 }

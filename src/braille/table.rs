@@ -395,18 +395,8 @@ impl CodeTable {
     /// Load and validate a code table file (UTF-8 text, format in
     /// `lexicons/README.md`).
     pub fn from_file(path: &Path) -> Result<CodeTable> {
-        let bytes = std::fs::read(path).map_err(|e| Error::io("cannot read", path, e))?;
-        match String::from_utf8(bytes) {
-            Ok(text) => CodeTable::parse(&text, path),
-            Err(e) => {
-                let good = e.utf8_error().valid_up_to();
-                let line = e.as_bytes()[..good].iter().filter(|&&b| b == b'\n').count() + 1;
-                Err(Error::input(
-                    Location::file(path).line(line),
-                    "the file is not UTF-8 text: save it as UTF-8",
-                ))
-            }
-        }
+        let text = crate::fsutil::read_utf8(path, "save the file as UTF-8")?;
+        CodeTable::parse(&text, path)
     }
 
     /// Parse and validate a code table from `text`; `origin` names it in

@@ -7,16 +7,12 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 use tactread::braille::CodeTable;
 use tactread::decode::{BeamParams, Decoder};
+use tactread::fsutil::OutputGuard;
 use tactread::lexicon::{Lexicon, RescoreWeights};
 use tactread::metrics::{evaluate, EvalRecording, EvalSettings, Hypothesis, Metric, Reference};
-use tactread::net::Model;
 use tactread::recording::{Dataset, Split};
 use tactread::report::{place_truth, write_html_report, RecordingView};
 use tactread::{Error, Result};
-
-/// The default model (hex24, English), trained by
-/// `scripts/train_default_model.sh`; see docs/default-model.md.
-const DEFAULT_MODEL: &str = include_str!("../../models/default.json");
 
 /// Printed before the figures.
 const CAUTION: &str =
@@ -58,17 +54,12 @@ pub fn run(args: Args) -> Result<()> {
         ));
     }
     let report = args.out.join("report.html");
-    if report.exists() && !args.force {
-        return Err(Error::config(
-            "--out",
-            format!(
-                "{} exists: pass --force to overwrite it, or --out NEW_DIR",
-                report.display()
-            ),
-        ));
-    }
-    let model = Model::from_json(DEFAULT_MODEL, Path::new("<embedded default model>"))?;
+    let model = super::load_model(Path::new(super::DEFAULT_MODEL_WORD))?;
     let ds = Dataset::open(&data)?;
+    OutputGuard::new(args.force)
+        .input(data.join(tactread::recording::DATASET_INDEX))
+        .inputs(ds.entries().iter().map(|e| ds.manifest_path(e)))
+        .file(&report, "--out")?;
     let mut entries: Vec<_> = ds.split(Split::Test).cloned().collect();
     if let Some(n) = args.limit {
         entries.truncate(n);
@@ -83,7 +74,11 @@ pub fn run(args: Args) -> Result<()> {
         "tactread demo: reading {} test recordings of {} with the default model ({})",
         entries.len(),
         data.display(),
-        model.lang
+        if model.training.languages.is_empty() {
+            model.lang.clone()
+        } else {
+            model.training.languages.join(", ")
+        }
     );
 
     let mut evals = Vec::new();

@@ -14,13 +14,14 @@ use std::collections::BTreeMap;
 use std::path::PathBuf;
 use tactread::braille::CodeTable;
 use tactread::decode::{BeamParams, Decoded, Decoder};
-use tactread::lexicon::RescoreWeights;
+use tactread::fsutil::OutputGuard;
+use tactread::lexicon::{Lexicon, RescoreWeights};
 use tactread::metrics::{
     evaluate, EvalRecording, EvalSettings, Evaluation, Hypothesis, Metric, Reference,
 };
 use tactread::net::Model;
 use tactread::pipeline::{place_decoded, read_recording};
-use tactread::recording::{Dataset, Recording, Split};
+use tactread::recording::{Dataset, Recording, RecordingStream, Split};
 use tactread::report::{place_truth, write_html_report, RecordingView};
 use tactread::{Error, Result};
 
@@ -30,7 +31,9 @@ const REPORT_VIEWS: usize = 3;
 /// Options of `tactread evaluate`.
 #[derive(Debug, ClapArgs)]
 pub struct Args {
-    /// The model file (from `tactread train`).
+    /// The model file (from `tactread train`), or `default` for the
+    /// embedded default model (hex24 fingertip; en, de, fr, es; a file called
+    /// `default` is read as `./default`).
     model: PathBuf,
     /// A dataset folder (with index.json), or recording manifests.
     #[arg(required = true)]
@@ -87,6 +90,8 @@ impl SplitArg {
 struct Item {
     id: String,
     path: PathBuf,
+    /// The recording's language, when the dataset index gives it.
+    lang: Option<String>,
 }
 
 fn items(args: &Args) -> Result<Vec<Item>> {
@@ -99,6 +104,7 @@ fn items(args: &Args) -> Result<Vec<Item>> {
             .map(|e| Item {
                 id: e.manifest.clone(),
                 path: ds.manifest_path(e),
+                lang: Some(e.lang.clone()),
             })
             .collect();
         if items.is_empty() {
@@ -137,18 +143,17 @@ fn items(args: &Args) -> Result<Vec<Item>> {
             Ok(Item {
                 id: p.display().to_string(),
                 path: p.clone(),
+                lang: None,
             })
         })
         .collect()
 }
 
-fn check_output(path: &Option<PathBuf>, flag: &str, force: bool) -> Result<()> {
-    if let Some(p) = path {
-        if p.exists() && !force {
-            return Err(Error::Output {
-                path: p.clone(),
-                reason: format!("the file exists: pass --force to overwrite it ({flag})"),
-            });
+/// Check `--json` and `--report` against the inputs known so far.
+fn check_outputs(args: &Args, guard: &mut OutputGuard) -> Result<()> {
+    for (path, flag) in [(&args.json, "--json"), (&args.report, "--report")] {
+        if let Some(p) = path {
+            guard.file(p, flag)?;
         }
     }
     Ok(())
@@ -184,21 +189,61 @@ struct Read {
 
 /// Run `tactread evaluate`.
 pub fn run(args: Args) -> Result<()> {
-    check_output(&args.json, "--json", args.force)?;
-    check_output(&args.report, "--report", args.force)?;
     let items = items(&args)?;
-    let model = Model::load(&args.model)?;
-    let lang = args.lang.clone().unwrap_or_else(|| model.lang.clone());
-    let table = CodeTable::builtin(&lang)?;
-    let lexicon = load_lexicon(args.lexicon.as_deref(), &lang)?;
+    let mut guard = OutputGuard::new(args.force);
+    guard.input(&args.model);
+    if let [dir] = args.data.as_slice() {
+        if dir.is_dir() {
+            guard.input(dir.join(tactread::recording::DATASET_INDEX));
+        }
+    }
+    if let Some(lexicon) = args.lexicon.as_deref().filter(|l| *l != "none") {
+        guard.input(lexicon);
+    }
+    guard.inputs(items.iter().map(|i| &i.path));
+    check_outputs(&args, &mut guard)?;
+    let model = super::load_model(&args.model)?;
+    // Each recording is read in its own language (from the dataset index or
+    // its manifest, else the model's), unless --lang names one for all.
+    let item_langs: Vec<String> = items
+        .iter()
+        .map(|it| match (&args.lang, &it.lang) {
+            (Some(l), _) | (None, Some(l)) => Ok(l.clone()),
+            (None, None) => Ok(RecordingStream::open(&it.path)?
+                .manifest()
+                .lang
+                .clone()
+                .unwrap_or_else(|| model.lang.clone())),
+        })
+        .collect::<Result<_>>()?;
+    let mut packs: BTreeMap<String, (CodeTable, Option<Lexicon>)> = BTreeMap::new();
+    for lang in &item_langs {
+        if !packs.contains_key(lang) {
+            let table = CodeTable::builtin(lang)?;
+            let lexicon = load_lexicon(args.lexicon.as_deref(), lang)?;
+            packs.insert(lang.clone(), (table, lexicon));
+        }
+    }
     let beam = BeamParams {
         beam_width: args.beam,
         n_best: 3.min(args.beam.max(1)),
         ..BeamParams::default()
     };
-    let mut decoder = Decoder::new(&table, beam)?;
-    if let Some(lex) = &lexicon {
-        decoder = decoder.with_lexicon(lex, RescoreWeights::default())?;
+    let mut decoders: BTreeMap<&str, (&CodeTable, Decoder<'_, CodeTable>)> = BTreeMap::new();
+    for (lang, (table, lexicon)) in &packs {
+        let mut decoder = Decoder::new(table, beam.clone())?;
+        if let Some(lex) = lexicon {
+            decoder = decoder.with_lexicon(lex, RescoreWeights::default())?;
+        }
+        decoders.insert(lang.as_str(), (table, decoder));
+    }
+    if packs.len() > 1 {
+        eprintln!(
+            "reading {} recordings in {} languages: {}",
+            items.len(),
+            packs.len(),
+            packs.keys().cloned().collect::<Vec<_>>().join(", ")
+        );
     }
     let settings = EvalSettings {
         resamples: args.resamples,
@@ -217,18 +262,25 @@ pub fn run(args: Args) -> Result<()> {
         .num_threads(args.threads.unwrap_or(0))
         .build()
         .map_err(|e| Error::config("--threads", format!("cannot start worker threads: {e}")))?;
-    let with_lex = lexicon.is_some();
+    let with_lex = args.lexicon.as_deref() != Some("none");
     let reads: Vec<Read> = pool.install(|| {
         items
             .par_iter()
-            .map(|item| {
-                let r = read_one(item, &model, &decoder, &table, with_lex);
+            .zip(&item_langs)
+            .map(|(item, lang)| {
+                let (table, decoder) = &decoders[lang.as_str()];
+                let r = read_one(item, &model, decoder, table, with_lex);
                 bar.inc(1);
                 r
             })
             .collect::<Result<Vec<_>>>()
     })?;
     bar.finish_and_clear();
+    for (item, r) in items.iter().zip(&reads) {
+        let dir = item.path.parent().unwrap_or(std::path::Path::new(""));
+        guard.input(dir.join(&r.rec.manifest.frames));
+    }
+    check_outputs(&args, &mut guard)?;
 
     // Alternatives go in for all recordings or none (the metrics need one or the other).
     let mut evals: Vec<EvalRecording> = reads.iter().map(|r| r.eval.clone()).collect();
@@ -287,8 +339,9 @@ fn read_one(
         Error::input(
             tactread::Location::file(&item.path).field("text"),
             format!(
-                "the ground truth cannot be written with the reading language's code table ({e}): \
-                 evaluate recordings of the model's language, or pass --lang"
+                "the ground truth cannot be written with the `{}` code table ({e}): check the \
+                 recording's `lang` field, or pass --lang to read it in another language",
+                table.lang()
             ),
         )
     })?;

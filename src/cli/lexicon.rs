@@ -3,6 +3,7 @@
 
 use clap::{Args as ClapArgs, Subcommand};
 use std::path::PathBuf;
+use tactread::fsutil::{write_atomic, OutputGuard};
 use tactread::lexicon::{read_word_list, Lexicon};
 use tactread::{Error, Result};
 
@@ -87,18 +88,9 @@ pub fn run(args: Args) -> Result<()> {
 }
 
 fn build(a: BuildArgs) -> Result<()> {
-    if a.out == a.words {
-        return Err(Error::Output {
-            path: a.out,
-            reason: "it is the input word list: choose another --out".into(),
-        });
-    }
-    if a.out.exists() && !a.force {
-        return Err(Error::Output {
-            path: a.out,
-            reason: "the file exists: pass --force to overwrite it".into(),
-        });
-    }
+    OutputGuard::new(a.force)
+        .input(&a.words)
+        .file(&a.out, "--out")?;
     let entries = read_word_list(&a.words)?;
     if entries.is_empty() {
         return Err(Error::input(
@@ -150,12 +142,12 @@ fn tune(a: TuneArgs) -> Result<()> {
     use tactread::lexicon::{RescoreWeights, TuneItem, WeightGrid};
     use tactread::net::Model;
     use tactread::recording::Recording;
-    if a.out.exists() && !a.force {
-        return Err(Error::Output {
-            path: a.out,
-            reason: "the file exists: pass --force to overwrite it".into(),
-        });
+    let mut guard = OutputGuard::new(a.force);
+    guard.input(&a.model).inputs(&a.recordings);
+    if let Some(lexicon) = &a.lexicon {
+        guard.input(lexicon);
     }
+    guard.file(&a.out, "--out")?;
     let model = Model::load(&a.model)?;
     let lang = a.lang.clone().unwrap_or_else(|| model.lang.clone());
     let table = CodeTable::builtin(&lang)?;
@@ -167,6 +159,10 @@ fn tune(a: TuneArgs) -> Result<()> {
     for path in &a.recordings {
         let name = path.display().to_string();
         let rec = Recording::load(path)?;
+        // The frames file is an input too (an odd --out could name it).
+        let dir = path.parent().unwrap_or(std::path::Path::new(""));
+        guard.input(dir.join(&rec.manifest.frames));
+        guard.file(&a.out, "--out")?;
         let truth = rec.manifest.text.clone().ok_or_else(|| {
             Error::input(
                 tactread::Location::file(path).field("text"),
@@ -205,27 +201,4 @@ fn tune(a: TuneArgs) -> Result<()> {
         tuned.tried
     );
     Ok(())
-}
-
-/// Write `bytes` to `path` through a temporary file in the same folder,
-/// then a rename.
-fn write_atomic(path: &std::path::Path, bytes: &[u8]) -> Result<()> {
-    let dir = match path.parent() {
-        Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-        _ => PathBuf::from("."),
-    };
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_else(|| "out".into());
-    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    let result = std::fs::write(&tmp, bytes)
-        .map_err(|e| Error::io("cannot write", &tmp, e))
-        .and_then(|_| {
-            std::fs::rename(&tmp, path).map_err(|e| Error::io("cannot rename into", path, e))
-        });
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result
 }

@@ -3,6 +3,8 @@
 //! any work starts.
 
 use clap::{Parser, Subcommand};
+use std::path::Path;
+use tactread::net::Model;
 use tactread::Result;
 
 mod cells;
@@ -15,6 +17,24 @@ mod lexicon;
 mod show;
 mod simulate;
 mod train;
+
+/// The default model (hex24 fingertip; en, de, fr, es), trained by
+/// `scripts/train_default_model.sh`; see docs/default-model.md.
+pub(crate) const DEFAULT_MODEL: &str = include_str!("../../models/default.json");
+
+/// The word that names [`DEFAULT_MODEL`] where a model file is expected.
+pub(crate) const DEFAULT_MODEL_WORD: &str = "default";
+
+/// The model a MODEL argument names: the word `default` is the embedded
+/// default model (to read a file called `default`, write `./default`);
+/// anything else is a model file.
+pub(crate) fn load_model(arg: &Path) -> Result<Model> {
+    if arg.as_os_str() == DEFAULT_MODEL_WORD {
+        Model::from_json(DEFAULT_MODEL, Path::new("<embedded default model>"))
+    } else {
+        Model::load(arg)
+    }
+}
 
 /// Read braille by touch from tactile sensor recordings.
 #[derive(Debug, Parser)]

@@ -8,6 +8,7 @@
 
 use clap::Args as ClapArgs;
 use std::path::PathBuf;
+use tactread::fsutil::OutputGuard;
 use tactread::recording::Recording;
 use tactread::report::{
     place_evenly, place_truth, recording_view_svg, view_axis, write_svg, RecordingView,
@@ -74,19 +75,20 @@ pub fn run(args: Args) -> Result<()> {
             "the view is an SVG file: give a name ending in .svg",
         ));
     }
-    if args.out == args.recording {
-        return Err(Error::Output {
-            path: args.out,
-            reason: "it is the input recording: choose another --out".into(),
-        });
+    let mut guard = OutputGuard::new(args.force);
+    guard.input(&args.recording);
+    if let Some(model) = &args.model {
+        guard.input(model);
     }
-    if args.out.exists() && !args.force {
-        return Err(Error::Output {
-            path: args.out,
-            reason: "the file exists: pass --force to overwrite it".into(),
-        });
-    }
+    guard.file(&args.out, "--out")?;
     let rec = Recording::load(&args.recording)?;
+    // The manifest and the frames file (the argument may name either).
+    let stem = args.recording.with_extension("json");
+    let dir = stem.parent().unwrap_or(std::path::Path::new(""));
+    guard
+        .input(&stem)
+        .input(dir.join(&rec.manifest.frames))
+        .file(&args.out, "--out")?;
     let lang = args
         .lang
         .clone()

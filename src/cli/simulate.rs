@@ -12,6 +12,7 @@ use rand::seq::SliceRandom;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::path::{Path, PathBuf};
+use tactread::fsutil::OutputGuard;
 use tactread::recording::{FramesKind, SaveOptions, Split};
 use tactread::simulate::{
     corpus_lines, encode_line, recording_seed, write_dataset, DatasetLine, DatasetPlan,
@@ -254,17 +255,22 @@ fn build(sim: &SimArgs) -> Result<(Simulator, [f64; 2])> {
     Ok((Simulator::new(cfg).map_err(map_flag)?, speed))
 }
 
+/// The files a simulation reads: the text file, and the sensor file and
+/// code table when those options name files rather than built-ins.
+fn input_files(sim: &SimArgs, lang: Option<&str>, text_file: Option<&Path>) -> Vec<PathBuf> {
+    let mut files: Vec<PathBuf> = text_file.into_iter().map(Path::to_path_buf).collect();
+    for name in [Some(sim.sensor.as_str()), lang].into_iter().flatten() {
+        let path = Path::new(name);
+        if path.is_file() {
+            files.push(path.to_path_buf());
+        }
+    }
+    files
+}
+
 /// Non-empty lines of a UTF-8 text file, with their 1-based line numbers.
 fn read_lines(path: &Path) -> Result<Vec<(usize, String)>> {
-    let bytes = std::fs::read(path).map_err(|e| Error::io("cannot read", path, e))?;
-    let text = String::from_utf8(bytes).map_err(|e| {
-        let good = e.utf8_error().valid_up_to();
-        let line = e.as_bytes()[..good].iter().filter(|&&b| b == b'\n').count() + 1;
-        Error::input(
-            Location::file(path).line(line),
-            "the file is not UTF-8 text: save it as UTF-8",
-        )
-    })?;
+    let text = tactread::fsutil::read_utf8(path, "save the file as UTF-8")?;
     Ok(text
         .lines()
         .enumerate()
@@ -361,17 +367,17 @@ fn run_single(args: Args) -> Result<()> {
     rec.manifest.text = Some(text);
     rec.manifest.lang = Some(table.lang().to_string());
     let kind = frames_kind(&args.sim.frames);
-    if !args.sim.force {
-        for path in [out.clone(), out.with_extension(kind.extension())] {
-            if path.exists() {
-                return Err(Error::Output {
-                    path,
-                    reason: "the file exists: pass --force to replace it, or choose another --out"
-                        .into(),
-                });
-            }
-        }
-    }
+    let mut guard = OutputGuard::new(args.sim.force);
+    guard.inputs(input_files(
+        &args.sim,
+        Some(&args.lang),
+        args.text_file.as_deref(),
+    ));
+    guard.file(&out, "--out")?;
+    guard.file(
+        &out.with_extension(kind.extension()),
+        "--out (its frames file)",
+    )?;
     rec.save(&out, SaveOptions::new(kind).overwrite(args.sim.force))?;
     println!(
         "wrote {} and {}: {} frames ({:.2} s at {} Hz) of {} cells, sensor {}, preset {}, {:.1} mm/s",
@@ -474,6 +480,13 @@ fn run_dataset(args: DatasetArgs) -> Result<()> {
             corpus_selection(&langs, args.lines.unwrap_or(1000), args.sim.seed)?
         }
     };
+    OutputGuard::new(args.sim.force)
+        .inputs(input_files(
+            &args.sim,
+            args.lang.as_deref(),
+            args.text_file.as_deref(),
+        ))
+        .folder(&args.out, "--out")?;
     let mut plan = DatasetPlan::new(lines);
     plan.split = split;
     plan.takes = args.takes;

@@ -265,7 +265,10 @@ impl Evaluation {
     /// [`Error::Input`] naming the line.
     pub fn load(path: impl AsRef<Path>) -> Result<Evaluation> {
         let path = path.as_ref();
-        let text = std::fs::read_to_string(path).map_err(|e| Error::io("cannot read", path, e))?;
+        let text = crate::fsutil::read_utf8(
+            path,
+            "a metrics file is UTF-8 JSON written by `tactread evaluate --json`: write it again",
+        )?;
         Self::from_json(&text, path)
     }
 

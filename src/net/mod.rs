@@ -24,6 +24,8 @@ mod optim;
 pub use ctc::{ctc_loss, CtcLoss};
 pub use gru::{GruConfig, GruStack, GruState};
 pub use head::{dot_probs, pattern_log_probs, BLANK, N_CLASSES, N_LOGITS};
-pub use model::{Architecture, Model, SensorSummary, TrainingSummary, MODEL_FORMAT, MODEL_VERSION};
+pub use model::{
+    Architecture, FineTunedFrom, Model, SensorSummary, TrainingSummary, MODEL_FORMAT, MODEL_VERSION,
+};
 pub use network::{BatchLoss, Network, StreamState};
 pub use optim::{clip_global_norm, global_norm, Adam, AdamConfig, LrSchedule};

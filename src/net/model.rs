@@ -79,9 +79,33 @@ pub struct TrainingSummary {
     pub seed: u64,
     /// Threads (also the number of gradient shards).
     pub threads: usize,
+    /// Languages of the training texts when there were several (the
+    /// model's `lang` is then the most common one); empty for one language.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub languages: Vec<String>,
     /// The other options, as given.
     #[serde(default)]
     pub options: serde_json::Map<String, serde_json::Value>,
+    /// The model this one was fine-tuned from (`tactread train --init`);
+    /// absent (and not written) for a model trained from scratch, so model
+    /// files written before the field existed still load.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fine_tuned_from: Option<FineTunedFrom>,
+}
+
+/// Where a fine-tuned model started (see [`TrainingSummary::fine_tuned_from`]).
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct FineTunedFrom {
+    /// The starting model as it was named (a path, or `default` for the
+    /// embedded default model).
+    pub model: String,
+    /// The dataset the starting model was trained on (its summary's `data`).
+    pub data: String,
+    /// Epochs the starting model had been trained.
+    pub epochs: usize,
+    /// Whether the preprocessing's baseline and scale were re-estimated on
+    /// the new data (else the starting model's were kept).
+    pub refit_prep: bool,
 }
 
 /// A trained model: network, preprocessing and metadata.
@@ -279,6 +303,17 @@ mod tests {
         let back = Model::load(&path).unwrap();
         assert_eq!(back, m);
         std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
+    fn files_without_the_fine_tuning_field_still_load() {
+        // models/default.json was written before `fine_tuned_from` existed.
+        let text = include_str!("../../models/default.json");
+        assert!(!text.contains("fine_tuned_from"));
+        let m = Model::from_json(text, Path::new("models/default.json")).unwrap();
+        assert!(m.training.fine_tuned_from.is_none());
+        // And a model trained from scratch does not write it.
+        assert!(!model().to_json().contains("fine_tuned_from"));
     }
 
     #[test]

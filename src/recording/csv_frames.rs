@@ -64,6 +64,9 @@ pub struct CsvFrameReader<R: Read> {
     rows: usize,
     time: TimeCheck,
     buf: Vec<u8>,
+    /// Whether the last line read ended at the end of the input without a
+    /// line break (a file cut short, or one without a final newline).
+    unterminated: bool,
     done: bool,
 }
 
@@ -93,6 +96,7 @@ impl<R: Read> CsvFrameReader<R> {
             rows: 0,
             time: TimeCheck::default(),
             buf: Vec::new(),
+            unterminated: false,
             done: false,
         };
         this.read_header()?;
@@ -150,6 +154,7 @@ impl<R: Read> CsvFrameReader<R> {
                 return Ok(false);
             }
             self.line += 1;
+            self.unterminated = self.buf.last() != Some(&b'\n');
             if self.buf.last() == Some(&b'\n') {
                 self.buf.pop();
                 if self.buf.last() == Some(&b'\r') {
@@ -305,14 +310,25 @@ impl<R: Read> CsvFrameReader<R> {
         let n_cols = self.columns.len();
         if fields.len() < n_cols {
             let missing = &self.columns[fields.len()];
-            return Err(Error::input(
-                at.field(missing.clone()),
+            // A short last line without a line break is a file cut short
+            // (a copy or a recording stopped mid-row); a short line
+            // elsewhere is a row the rig wrote without a value.
+            let message = if self.unterminated {
                 format!(
-                    "data row {row}: missing value: the row has {} values, the header has {n_cols} \
-                     columns (if this is the last line, the file may have been cut short)",
+                    "data row {row}: missing value: the row has {} values, the header has \
+                     {n_cols} columns, and the file ends inside this row without a line break: \
+                     the file was cut short; copy it again from its source, or delete the \
+                     unfinished last line",
                     fields.len()
-                ),
-            ));
+                )
+            } else {
+                format!(
+                    "data row {row}: missing value: the row has {} values, the header has \
+                     {n_cols} columns: give every column a value, or drop the row",
+                    fields.len()
+                )
+            };
+            return Err(Error::input(at.field(missing.clone()), message));
         }
         if fields.len() > n_cols {
             return Err(Error::input(
@@ -615,6 +631,13 @@ mod tests {
         let (at, m) = input_err(all("time_s,a,b\n0,1\n", 2));
         assert_eq!(at.field.as_deref(), Some("b"));
         assert!(m.contains("missing value"), "{m}");
+        assert!(m.contains("give every column a value"), "{m}");
+        // The same short row without its line break ends a file cut short.
+        let (at, m) = input_err(all("time_s,a,b\n0,1", 2));
+        assert_eq!(at.field.as_deref(), Some("b"));
+        assert!(m.contains("the file was cut short"), "{m}");
+        // A complete last row without a final newline is fine.
+        assert!(all("time_s,a,b\n0,1,2", 2).is_ok());
         let (at, m) = input_err(all("time_s,a,b\n0,1,2,\n", 2));
         assert_eq!(at.field.as_deref(), Some("column 4"));
         assert!(m.contains("extra value"), "{m}");

@@ -198,8 +198,10 @@ impl Dataset {
     /// read until [`Dataset::load`].
     pub fn open(dir: &Path) -> Result<Dataset> {
         let path = dir.join(DATASET_INDEX);
-        let text =
-            std::fs::read_to_string(&path).map_err(|e| Error::io("cannot read", &path, e))?;
+        let text = crate::fsutil::read_utf8(
+            &path,
+            "a dataset index is UTF-8 JSON (see docs/dataset-format.md): save it as UTF-8",
+        )?;
         let origin = path.display().to_string();
         // Tag and version first, so another format gets a clear error.
         #[derive(Deserialize)]

@@ -7,10 +7,10 @@
 use super::manifest::{check_manifest, extension_lower, to_json};
 use super::values::{self, TimeCheck, POSITION, TIME};
 use super::{csv_frames, npy_frames, NpyColumns, Recording, MANIFEST_FORMAT, MANIFEST_VERSION};
+use crate::fsutil::{sync_folder, write_temp};
 use crate::{Error, Result};
 use std::io::Write;
-use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicUsize, Ordering};
+use std::path::Path;
 
 /// The two kinds of frames file.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
@@ -171,7 +171,7 @@ impl Recording {
             let _ = std::fs::remove_file(&manifest_tmp);
             return Err(Error::io("cannot write", manifest_path, e));
         }
-        sync_dir(manifest_path);
+        sync_folder(manifest_path);
         Ok(())
     }
 }
@@ -229,59 +229,4 @@ fn check_recording(rec: &Recording, frames_path: &Path) -> Result<()> {
         }
     }
     Ok(())
-}
-
-/// Write a temporary file beside `target` with `fill`, flush it to disk
-/// and return its path. The temporary is removed if anything fails.
-fn write_temp(
-    target: &Path,
-    fill: impl FnOnce(&mut std::io::BufWriter<&std::fs::File>) -> std::io::Result<()>,
-) -> Result<PathBuf> {
-    static COUNTER: AtomicUsize = AtomicUsize::new(0);
-    let name = target
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    let tmp = target.with_file_name(format!(
-        ".{name}.{}-{}.tmp",
-        std::process::id(),
-        COUNTER.fetch_add(1, Ordering::Relaxed)
-    ));
-    let file = std::fs::OpenOptions::new()
-        .write(true)
-        .create_new(true)
-        .open(&tmp)
-        .map_err(|e| Error::io("cannot create", &tmp, e))?;
-    let result = (|| {
-        let mut w = std::io::BufWriter::new(&file);
-        fill(&mut w)?;
-        w.flush()?;
-        drop(w);
-        file.sync_all()
-    })();
-    drop(file);
-    match result {
-        Ok(()) => Ok(tmp),
-        Err(e) => {
-            let _ = std::fs::remove_file(&tmp);
-            Err(Error::io("cannot write", target, e))
-        }
-    }
-}
-
-/// Flush the folder entry of `path` to disk where the platform allows it;
-/// failures are ignored (the files themselves are already synced).
-fn sync_dir(path: &Path) {
-    #[cfg(unix)]
-    {
-        let dir = match path.parent() {
-            Some(d) if !d.as_os_str().is_empty() => d,
-            _ => Path::new("."),
-        };
-        if let Ok(d) = std::fs::File::open(dir) {
-            let _ = d.sync_all();
-        }
-    }
-    #[cfg(not(unix))]
-    let _ = path;
 }

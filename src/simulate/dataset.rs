@@ -130,9 +130,46 @@ pub(crate) fn split_counts(n: usize, fractions: [f64; 3]) -> [usize; 3] {
     counts
 }
 
+/// Whether every entry of `dir` is a part a dataset write leaves: the index,
+/// split folders holding only recordings named as [`write_dataset`] names
+/// them (`00042-en.json` and its frames file), and temporaries of atomic
+/// writes. A folder holding only such split folders is a dataset whose
+/// writing was stopped before its index (written last).
+fn only_dataset_parts(dir: &Path) -> bool {
+    let temporary = |name: &str| name.starts_with('.') && name.contains(".tmp-");
+    let ours = |name: &str| {
+        let Some((stem, ext)) = name.rsplit_once('.') else {
+            return false;
+        };
+        let Some((number, lang)) = stem.split_once('-') else {
+            return false;
+        };
+        matches!(ext, "json" | "csv" | "npy")
+            && number.len() >= 5
+            && number.bytes().all(|b| b.is_ascii_digit())
+            && !lang.is_empty()
+            && lang.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'-')
+    };
+    let entries_all = |d: &Path, ok: &dyn Fn(&std::fs::DirEntry) -> bool| {
+        std::fs::read_dir(d).is_ok_and(|mut entries| entries.all(|e| e.as_ref().is_ok_and(ok)))
+    };
+    entries_all(dir, &|e| {
+        let name = e.file_name().to_string_lossy().into_owned();
+        if name == DATASET_INDEX || temporary(&name) {
+            return true;
+        }
+        Split::ALL.iter().any(|s| s.name() == name)
+            && entries_all(&e.path(), &|f| {
+                let n = f.file_name().to_string_lossy().into_owned();
+                ours(&n) || temporary(&n)
+            })
+    })
+}
+
 /// Check that `dir` may receive a dataset: missing or empty, or (with
-/// `overwrite`) holding a tactread dataset, whose index and split folders
-/// are then removed.
+/// `overwrite`) holding a tactread dataset, or an unfinished one (split
+/// folders without an index, as a run stopped part-way leaves), whose
+/// index, split folders and temporaries are then removed.
 fn prepare_dir(dir: &Path, overwrite: bool) -> Result<()> {
     if !dir.exists() {
         return std::fs::create_dir_all(dir).map_err(|e| Error::io("cannot create", dir, e));
@@ -152,24 +189,38 @@ fn prepare_dir(dir: &Path, overwrite: bool) -> Result<()> {
         .ok()
         .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
         .is_some_and(|v| v.get("format").and_then(|f| f.as_str()) == Some(DATASET_FORMAT));
+    let unfinished = !is_dataset && only_dataset_parts(dir);
     if !overwrite {
         return Err(Error::Output {
             path: dir.to_path_buf(),
             reason: if is_dataset {
                 "holds a dataset already: pass --force to replace it, or choose another folder"
                     .into()
+            } else if unfinished {
+                "holds an unfinished dataset (split folders but no index.json: an earlier run \
+                 stopped part-way): pass --force to replace it, or choose another folder"
+                    .into()
             } else {
                 "is not empty: choose an empty or new folder".into()
             },
         });
     }
-    if !is_dataset {
+    if !is_dataset && !unfinished {
         return Err(Error::Output {
             path: dir.to_path_buf(),
             reason: "is not empty and holds no tactread dataset (no index.json), so even --force does not replace it: choose an empty or new folder".into(),
         });
     }
-    std::fs::remove_file(&index).map_err(|e| Error::io("cannot remove", &index, e))?;
+    if index.exists() {
+        std::fs::remove_file(&index).map_err(|e| Error::io("cannot remove", &index, e))?;
+    }
+    if unfinished {
+        for e in std::fs::read_dir(dir).into_iter().flatten().flatten() {
+            if e.file_name().to_string_lossy().starts_with('.') {
+                let _ = std::fs::remove_file(e.path());
+            }
+        }
+    }
     for split in Split::ALL {
         let sub = dir.join(split.name());
         if sub.is_dir() {
@@ -267,6 +318,29 @@ pub fn write_dataset(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn an_unfinished_dataset_is_told_from_a_users_folder() {
+        let dir = std::env::temp_dir().join(format!("tactread-unfinished-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(dir.join("train")).unwrap();
+        for name in ["00000-en.json", "00000-en.csv", ".00001-en.csv.tmp-77-0"] {
+            std::fs::write(dir.join("train").join(name), "x").unwrap();
+        }
+        assert!(only_dataset_parts(&dir));
+        std::fs::write(dir.join("train/notes.txt"), "mine").unwrap();
+        assert!(
+            !only_dataset_parts(&dir),
+            "a file of the user's in a split folder"
+        );
+        std::fs::remove_file(dir.join("train/notes.txt")).unwrap();
+        std::fs::write(dir.join("readme.md"), "mine").unwrap();
+        assert!(
+            !only_dataset_parts(&dir),
+            "a file of the user's beside the splits"
+        );
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
 
     #[test]
     fn split_counts_sum_and_follow_fractions() {

@@ -1,7 +1,8 @@
 //! Training: mini-batches bucketed by length, Adam with gradient clipping
 //! and a warm-up + cosine schedule, validation every epoch with greedy CTC
 //! decoding (dot and character accuracy), early stopping, the best model
-//! kept, atomic checkpoints and resuming.
+//! kept, atomic checkpoints and resuming; and fine-tuning ([`fine_tune`]):
+//! the same loop started from a trained model's weights and preprocessing.
 //!
 //! Determinism: for a given seed and thread count the run is reproducible
 //! bit for bit. The batch order of epoch `e` comes from a ChaCha8 stream
@@ -16,9 +17,10 @@ pub(crate) use greedy::{greedy_cells, score};
 
 use crate::braille::CodeTable;
 use crate::net::{
-    Adam, AdamConfig, GruConfig, LrSchedule, Model, Network, SensorSummary, TrainingSummary,
+    Adam, AdamConfig, FineTunedFrom, GruConfig, LrSchedule, Model, Network, SensorSummary,
+    TrainingSummary,
 };
-use crate::prep::{Prep, PrepConfig};
+use crate::prep::{Grid, Prep, PrepConfig};
 use crate::{Cell, Error, Result};
 use ndarray::Array2;
 use rand::seq::SliceRandom;
@@ -28,6 +30,7 @@ use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::ops::ControlFlow;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 use std::time::Instant;
 
 /// Training options. Defaults in brackets.
@@ -137,6 +140,10 @@ pub struct Example {
     pub recording: crate::recording::Recording,
     /// Ground-truth text.
     pub text: String,
+    /// The code table of this recording's language when it is not the
+    /// run's own (a dataset in several languages); `None` writes the text
+    /// with the table given to [`train`] / [`evaluate`].
+    pub table: Option<Arc<CodeTable>>,
 }
 
 /// A preprocessed example.
@@ -145,6 +152,7 @@ struct Prepared {
     cells: Vec<usize>,
     reference: Vec<Cell>,
     text: String,
+    table: Option<Arc<CodeTable>>,
 }
 
 /// Validation figures of one epoch.
@@ -260,6 +268,165 @@ pub fn train(
     data: &str,
     out: &Path,
     resume: bool,
+    on_event: impl FnMut(Event) -> ControlFlow<()>,
+) -> Result<Outcome> {
+    run(config, None, train, val, table, data, out, resume, on_event)
+}
+
+/// Default peak learning rate for fine-tuning: 1e-3, a third of the
+/// from-scratch default (3e-3), so the first updates adjust the trained
+/// weights rather than overwrite them.
+pub const FINE_TUNE_LR: f32 = 1e-3;
+
+/// Where a fine-tuning run starts (see [`fine_tune`]).
+#[derive(Debug, Clone, Copy)]
+pub struct FineTune<'a> {
+    /// The trained model whose architecture, weights and preprocessing
+    /// start the run.
+    pub model: &'a Model,
+    /// Its name in the new model's training summary (e.g. its path).
+    pub name: &'a str,
+    /// Re-estimate the per-taxel baseline and scale on the new training
+    /// data; the grid and decimation stay the model's [false: keep the
+    /// model's preprocessing as it is].
+    pub refit_prep: bool,
+}
+
+/// Fine-tuning: [`train`] started from `from.model` instead of random
+/// weights, with a fresh Adam state and the usual schedule (pass
+/// [`FINE_TUNE_LR`] or another low peak in `config.lr`). `config.hidden`,
+/// `layers` and `bidirectional` must agree with the model's network
+/// ([`Error::Config`] otherwise); the preprocessing options of `config` are
+/// not used: the model's grid and decimation are kept, and its baseline and
+/// scale too unless `from.refit_prep`. Every recording must fit the
+/// model's preprocessing (its taxel count, and a position channel when the
+/// model resamples by position): [`Error::Mismatch`] naming the recording
+/// otherwise. The new model's summary records the start in
+/// [`TrainingSummary::fine_tuned_from`]. Resuming (`resume`) continues an
+/// interrupted fine-tuning run from its checkpoint.
+#[allow(clippy::too_many_arguments)]
+pub fn fine_tune(
+    config: &TrainConfig,
+    from: FineTune<'_>,
+    train: &[Example],
+    val: &[Example],
+    table: &CodeTable,
+    data: &str,
+    out: &Path,
+    resume: bool,
+    on_event: impl FnMut(Event) -> ControlFlow<()>,
+) -> Result<Outcome> {
+    let have = from.model.network.config();
+    for (name, want, got) in [
+        ("hidden", config.hidden, have.hidden),
+        ("layers", config.layers, have.layers),
+    ] {
+        if want != got {
+            return Err(Error::config(
+                name,
+                format!(
+                    "is {want} but the model being fine-tuned ({}) has {got}: leave the option \
+                     out, or give {got}",
+                    from.name
+                ),
+            ));
+        }
+    }
+    if config.bidirectional != have.bidirectional {
+        let dir = |b: bool| if b { "bi" } else { "uni" };
+        return Err(Error::config(
+            "direction",
+            format!(
+                "is {} but the model being fine-tuned ({}) is {}: leave the option out, or give {}",
+                dir(config.bidirectional),
+                from.name,
+                dir(have.bidirectional),
+                dir(have.bidirectional)
+            ),
+        ));
+    }
+    run(
+        config,
+        Some(from),
+        train,
+        val,
+        table,
+        data,
+        out,
+        resume,
+        on_event,
+    )
+}
+
+/// Checks that every recording of `examples` fits `prep` (taxel count; a
+/// position channel for a position grid), naming the first that does not.
+fn check_fits(prep: &Prep, model_name: &str, examples: &[Example]) -> Result<()> {
+    for e in examples {
+        let taxels = e.recording.frames.ncols();
+        if taxels != prep.taxels {
+            return Err(Error::Mismatch {
+                what: format!("taxel count of {}", e.name),
+                expected: format!("{} (the sensor of {model_name})", prep.taxels),
+                got: taxels.to_string(),
+                hint: "fine-tune on recordings of a sensor with the model's taxel layout, or \
+                       train a new model without --init"
+                    .into(),
+            });
+        }
+        if matches!(prep.grid, Grid::Position { .. }) && e.recording.position_mm.is_none() {
+            return Err(Error::Mismatch {
+                what: format!("position channel of {}", e.name),
+                expected: format!("a position column ({model_name} resamples by position)"),
+                got: "none".into(),
+                hint: "fine-tune on recordings with the position encoder's channel, or train a \
+                       new model without --init"
+                    .into(),
+            });
+        }
+    }
+    Ok(())
+}
+
+/// The preprocessing a fine-tuning run uses: the model's, checked against
+/// the data, with baseline and scale re-estimated when asked.
+fn fine_tune_prep(from: &FineTune<'_>, train: &[Example], val: &[Example]) -> Result<Prep> {
+    let prep = &from.model.prep;
+    check_fits(prep, from.name, train)?;
+    check_fits(prep, from.name, val)?;
+    if !from.refit_prep {
+        return Ok(prep.clone());
+    }
+    let defaults = PrepConfig::default();
+    let config = PrepConfig {
+        step_mm: match prep.grid {
+            Grid::Position { step_mm } => step_mm,
+            Grid::Time { .. } => defaults.step_mm,
+        },
+        rate_hz: match prep.grid {
+            Grid::Time { rate_hz } => rate_hz,
+            Grid::Position { .. } => defaults.rate_hz,
+        },
+        decimate: prep.decimate,
+    };
+    let recs: Vec<&crate::recording::Recording> = train.iter().map(|e| &e.recording).collect();
+    let mut fitted = Prep::fit(&config, &recs)?;
+    // A time-grid model keeps its time grid even when the data has positions.
+    fitted.grid = prep.grid;
+    fitted.decimate = prep.decimate;
+    Ok(fitted)
+}
+
+/// The training loop behind [`train`] and [`fine_tune`].
+#[allow(clippy::too_many_arguments)]
+fn run(
+    config: &TrainConfig,
+    from: Option<FineTune<'_>>,
+    train: &[Example],
+    val: &[Example],
+    table: &CodeTable,
+    data: &str,
+    out: &Path,
+    resume: bool,
     mut on_event: impl FnMut(Event) -> ControlFlow<()>,
 ) -> Result<Outcome> {
     config.check()?;
@@ -274,8 +441,14 @@ pub fn train(
         ));
     }
     let started = Instant::now();
-    let recs: Vec<&crate::recording::Recording> = train.iter().map(|e| &e.recording).collect();
-    let prep = Prep::fit(&config.prep_config(), &recs)?;
+    let prep = match &from {
+        Some(f) => fine_tune_prep(f, train, val)?,
+        None => {
+            let recs: Vec<&crate::recording::Recording> =
+                train.iter().map(|e| &e.recording).collect();
+            Prep::fit(&config.prep_config(), &recs)?
+        }
+    };
     let prep_one = |e: &Example| prepare(&prep, table, e);
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(config.threads)
@@ -312,15 +485,24 @@ pub fn train(
     schedule.warmup = schedule.warmup.min(total / 10 + 1);
 
     let ckpt_path = checkpoint_path(out);
-    let mut net = Network::new(gru, config.seed)?;
+    // Temporaries left by a run killed while writing are never read, but
+    // would pile up: remove them (one run at a time writes these files).
+    crate::fsutil::remove_stale_temps(out);
+    crate::fsutil::remove_stale_temps(&ckpt_path);
+    let mut net = match &from {
+        Some(f) => f.model.network.clone(),
+        None => Network::new(gru, config.seed)?,
+    };
     let mut adam = Adam::new(AdamConfig::default(), &net.param_sizes());
     let mut first_epoch = 0usize;
     let mut best: Option<(usize, Validation, f64)> = None;
     let mut stale = 0usize;
     let mut seconds_before = 0.0;
     if resume {
-        let text = std::fs::read_to_string(&ckpt_path)
-            .map_err(|e| Error::io("cannot read the checkpoint", &ckpt_path, e))?;
+        let text = crate::fsutil::read_utf8(
+            &ckpt_path,
+            "a checkpoint is UTF-8 JSON written by tactread: start again without --resume",
+        )?;
         let ck: Checkpoint = serde_json::from_str(&text).map_err(|e| Error::Format {
             path: ckpt_path.clone(),
             expected: format!("{CKPT_FORMAT} version 1"),
@@ -366,6 +548,18 @@ pub fn train(
     }
 
     let lang = table.lang().to_string();
+    let mut languages: Vec<String> = std::iter::once(lang.clone())
+        .chain(
+            train
+                .iter()
+                .filter_map(|e| e.table.as_ref().map(|t| t.lang().to_string())),
+        )
+        .collect();
+    languages.sort_unstable();
+    languages.dedup();
+    if languages.len() < 2 {
+        languages.clear();
+    }
     let sensor = SensorSummary {
         taxels: prep.taxels,
         name: train[0].recording.manifest.sensor.name.clone(),
@@ -382,15 +576,28 @@ pub fn train(
         seconds: secs,
         seed: config.seed,
         threads: config.threads,
+        languages: languages.clone(),
         options: match serde_json::to_value(config) {
             Ok(serde_json::Value::Object(m)) => m,
             _ => Default::default(),
         },
+        fine_tuned_from: from.as_ref().map(|f| FineTunedFrom {
+            model: f.name.to_string(),
+            data: f.model.training.data.clone(),
+            epochs: f.model.training.epochs,
+            refit_prep: f.refit_prep,
+        }),
     };
 
     let mut history = Vec::new();
+    // The model file is written before the checkpoint, so a run killed
+    // between the two leaves a model one epoch ahead of its checkpoint:
+    // only a model of the checkpoint's best epoch is kept (the epoch after
+    // is run again, and saves its model again if it is still the best).
     let mut best_model: Option<Model> = if resume && out.exists() {
-        Model::load(out).ok()
+        Model::load(out)
+            .ok()
+            .filter(|m| best.as_ref().map(|b| b.0) == Some(m.training.best_epoch))
     } else {
         None
     };
@@ -473,12 +680,27 @@ pub fn train(
             break;
         }
     }
-    let mut model = best_model.ok_or_else(|| {
-        Error::config(
-            "epochs",
-            "no epoch finished (the time limit was reached first): allow more time",
-        )
-    })?;
+    let mut model = match (best_model, &best) {
+        (Some(m), _) => m,
+        (None, Some((epoch, _, _))) => {
+            return Err(Error::Mismatch {
+                what: format!("model file {}", out.display()),
+                expected: format!(
+                    "the model of epoch {epoch}, the best in {}",
+                    ckpt_path.display()
+                ),
+                got: "another model or none".into(),
+                hint: "resume with more --epochs, or start again with --force (without --resume)"
+                    .into(),
+            })
+        }
+        (None, None) => {
+            return Err(Error::config(
+                "epochs",
+                "no epoch finished (the time limit was reached first): allow more time",
+            ))
+        }
+    };
     // Record the final epoch count and time in the summary of the best model.
     if let Some(b) = &best {
         model.training = summary_for(epoch, b, seconds_before + started.elapsed().as_secs_f64());
@@ -489,6 +711,7 @@ pub fn train(
 
 /// Preprocesses one example and writes its text as cells.
 fn prepare(prep: &Prep, table: &CodeTable, e: &Example) -> Result<Prepared> {
+    let table = e.table.as_deref().unwrap_or(table);
     let reference = table.encode(&e.text).map_err(|err| {
         Error::input(
             crate::Location::file(&e.name).field("text"),
@@ -514,6 +737,7 @@ fn prepare(prep: &Prep, table: &CodeTable, e: &Example) -> Result<Prepared> {
         cells,
         reference,
         text: e.text.clone(),
+        table: e.table.clone(),
     })
 }
 
@@ -557,6 +781,7 @@ fn validate(net: &Network, val: &[Prepared], table: &CodeTable) -> Result<Valida
     for ((hyp, l, n), p) in per.iter().zip(val) {
         loss += l;
         n_cells += n;
+        let table = p.table.as_deref().unwrap_or(table);
         let (right, total, c) = score(&p.reference, hyp, &p.text, table);
         dots.0 += right;
         dots.1 += total;
@@ -619,6 +844,7 @@ mod tests {
             name: format!("{text}.json"),
             recording,
             text: text.into(),
+            table: None,
         }
     }
 
@@ -731,6 +957,222 @@ mod tests {
         other.hidden = 10;
         let err = train(&other, &train_set, &val, &table, "toy", &b, true, go).unwrap_err();
         assert!(matches!(err, Error::Mismatch { .. }), "{err}");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    /// A run killed after writing a better model but before its checkpoint
+    /// leaves the model one epoch ahead. Reproduced by putting back the
+    /// previous epoch's checkpoint: resuming runs that epoch again and ends
+    /// as the uninterrupted run; with no epoch left to run it is an error,
+    /// not a model labelled with the wrong epoch.
+    #[test]
+    fn model_ahead_of_its_checkpoint_is_run_again() {
+        let (train_set, val, table) = toy_data();
+        let dir = std::env::temp_dir().join(format!("tactread-train-ahead-{}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).unwrap();
+        let (a, b) = (dir.join("a.json"), dir.join("b.json"));
+        let go = |_: Event| ControlFlow::Continue(());
+        let stop_at = |n: usize| {
+            move |e: Event| match e {
+                Event::Epoch { epoch, .. } if epoch == n => ControlFlow::Break(()),
+                _ => ControlFlow::Continue(()),
+            }
+        };
+        train(&config(3), &train_set, &val, &table, "toy", &a, false, go).unwrap();
+        train(
+            &config(3),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &b,
+            false,
+            stop_at(1),
+        )
+        .unwrap();
+        let ckpt_1 = std::fs::read(checkpoint_path(&b)).unwrap();
+        train(
+            &config(3),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &b,
+            true,
+            stop_at(2),
+        )
+        .unwrap();
+        assert_eq!(
+            Model::load(&b).unwrap().training.best_epoch,
+            2,
+            "the scenario needs epoch 2 to be the best so far"
+        );
+        std::fs::write(checkpoint_path(&b), &ckpt_1).unwrap();
+
+        // No epoch left to run (--epochs 1): refused.
+        let err = train(&config(1), &train_set, &val, &table, "toy", &b, true, go).unwrap_err();
+        assert!(matches!(err, Error::Mismatch { .. }), "{err}");
+        assert!(err.to_string().contains("model of epoch 1"), "{err}");
+
+        // Resumed to the end: the uninterrupted run's model.
+        train(&config(3), &train_set, &val, &table, "toy", &b, true, go).unwrap();
+        let (ma, mb) = (Model::load(&a).unwrap(), Model::load(&b).unwrap());
+        assert_eq!(ma.training.best_epoch, mb.training.best_epoch);
+        assert!(ma.network == mb.network, "resumed model differs");
+        std::fs::remove_dir_all(&dir).unwrap();
+    }
+
+    #[test]
+    fn fine_tuning_starts_from_the_model_and_checks_what_must_agree() {
+        let (train_set, val, table) = toy_data();
+        let dir = std::env::temp_dir().join(format!("tactread-ft-test-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let go = |_: Event| ControlFlow::Continue(());
+        let pre = train(
+            &config(3),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &dir.join("pre.json"),
+            false,
+            go,
+        )
+        .unwrap()
+        .model;
+        let from = FineTune {
+            model: &pre,
+            name: "pre.json",
+            refit_prep: false,
+        };
+        // Another architecture is refused before any work.
+        let mut other = config(2);
+        other.hidden = 10;
+        let out = dir.join("ft.json");
+        match fine_tune(&other, from, &train_set, &val, &table, "t", &out, false, go) {
+            Err(Error::Config { name, message }) => {
+                assert_eq!(name, "hidden");
+                assert!(
+                    message.contains("pre.json") && message.contains("12"),
+                    "{message}"
+                );
+            }
+            other => panic!("expected a config error, got {:?}", other.map(|_| ())),
+        }
+        let mut other = config(2);
+        other.bidirectional = true;
+        assert!(matches!(
+            fine_tune(&other, from, &train_set, &val, &table, "t", &out, false, go),
+            Err(Error::Config { .. })
+        ));
+        // Recordings the model's preprocessing cannot read, named.
+        let mut five = val.clone();
+        five[2].recording.frames = five[2]
+            .recording
+            .frames
+            .slice(ndarray::s![.., ..5])
+            .to_owned();
+        match fine_tune(
+            &config(2),
+            from,
+            &train_set,
+            &five,
+            &table,
+            "t",
+            &out,
+            false,
+            go,
+        ) {
+            Err(Error::Mismatch { what, .. }) => assert!(what.contains(&five[2].name), "{what}"),
+            other => panic!("expected a mismatch, got {:?}", other.map(|_| ())),
+        }
+        let mut blind = train_set.clone();
+        blind[4].recording.position_mm = None;
+        match fine_tune(&config(2), from, &blind, &val, &table, "t", &out, false, go) {
+            Err(Error::Mismatch { what, .. }) => {
+                assert!(
+                    what.contains("position") && what.contains(&blind[4].name),
+                    "{what}"
+                )
+            }
+            other => panic!("expected a mismatch, got {:?}", other.map(|_| ())),
+        }
+
+        // A run: the preprocessing is kept, the start recorded, and the
+        // first epoch starts from the trained weights, not random ones
+        // (its training loss is far below a fresh network's).
+        let tuned = fine_tune(
+            &config(1),
+            from,
+            &train_set,
+            &val,
+            &table,
+            "t",
+            &out,
+            false,
+            go,
+        )
+        .unwrap()
+        .model;
+        assert_eq!(tuned.prep, pre.prep);
+        let f = tuned.training.fine_tuned_from.clone().unwrap();
+        assert_eq!(
+            (f.model.as_str(), f.data.as_str(), f.epochs),
+            ("pre.json", "toy", 3)
+        );
+        let fresh = train(
+            &config(1),
+            &train_set,
+            &val,
+            &table,
+            "toy",
+            &dir.join("fresh.json"),
+            false,
+            go,
+        )
+        .unwrap()
+        .model;
+        assert!(
+            tuned.training.train_loss < fresh.training.train_loss,
+            "{} vs {}",
+            tuned.training.train_loss,
+            fresh.training.train_loss
+        );
+        assert_eq!(Model::load(&out).unwrap(), tuned);
+
+        // --refit-prep: baseline and scale from the new data (here shifted
+        // by 0.5 on every taxel), the grid kept.
+        let shifted: Vec<Example> = train_set
+            .iter()
+            .map(|e| {
+                let mut e = e.clone();
+                e.recording.frames.mapv_inplace(|v| v + 0.5);
+                e
+            })
+            .collect();
+        let refit = FineTune {
+            refit_prep: true,
+            ..from
+        };
+        let tuned = fine_tune(
+            &config(1),
+            refit,
+            &shifted,
+            &val,
+            &table,
+            "t",
+            &out,
+            false,
+            go,
+        )
+        .unwrap()
+        .model;
+        assert_eq!(tuned.prep.grid, pre.prep.grid);
+        for (a, b) in tuned.prep.baseline.iter().zip(&pre.prep.baseline) {
+            approx::assert_abs_diff_eq!(*a, b + 0.5, epsilon = 1e-4);
+        }
+        assert!(tuned.training.fine_tuned_from.unwrap().refit_prep);
         std::fs::remove_dir_all(&dir).unwrap();
     }
 

@@ -3,6 +3,8 @@
 //! errors grow with sliding speed. Seeded (ChaCha8), small, fast.
 #![allow(dead_code)]
 
+pub mod cli;
+
 use ndarray::Array2;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;

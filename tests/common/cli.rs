@@ -1,0 +1,75 @@
+//! Helpers shared by the tests that run the built binary: running
+//! `tactread` (optionally in a folder or with standard input), a fresh
+//! scratch folder per test, and paths as `&str` arguments.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output, Stdio};
+
+/// Run the built binary with `args` and wait for it.
+pub fn tactread(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_tactread"))
+        .args(args)
+        .output()
+        .expect("the binary runs")
+}
+
+/// Run the built binary with `args` in the folder `dir` (relative paths in
+/// arguments and messages are then relative to it).
+pub fn tactread_in(dir: &Path, args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_tactread"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("the binary runs")
+}
+
+/// Run the built binary with `args`, writing `stdin` to its standard input
+/// (none: an empty, closed input).
+pub fn tactread_with_stdin(args: &[&str], stdin: Option<&str>) -> Output {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_tactread"))
+        .args(args)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the binary runs");
+    if let Some(text) = stdin {
+        child
+            .stdin
+            .take()
+            .expect("stdin is piped")
+            .write_all(text.as_bytes())
+            .expect("stdin takes the text");
+    }
+    drop(child.stdin.take());
+    child.wait_with_output().expect("the binary finishes")
+}
+
+/// A fresh, empty scratch folder for one test, unique to this test binary,
+/// `name` and process.
+pub fn scratch(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!(
+        "tactread-{}-{name}-{}",
+        env!("CARGO_CRATE_NAME"),
+        std::process::id()
+    ));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).expect("the scratch folder can be made");
+    dir
+}
+
+/// A path as a command-line argument (test paths are UTF-8).
+pub fn s(p: &Path) -> &str {
+    p.to_str().expect("test paths are UTF-8")
+}
+
+/// Standard error as text.
+pub fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+/// Standard output as text.
+pub fn stdout(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
