@@ -34,7 +34,7 @@
 //! time step are a prefix of the batch, so each recurrent GEMM only covers
 //! rows that are still running.
 
-use super::kernels::{self, gemm, gemm_rows, gemv, multiversion, Packed};
+use super::kernels::{self, gemm, gemm_rows, gemv, gemv_packed, multiversion, GemvPacked, Packed};
 use crate::{Error, Result};
 use ndarray::{s, Array1, Array2, Array3, ArrayView2, ArrayView3, Axis};
 use rand::Rng;
@@ -382,7 +382,7 @@ impl GruStack {
             let mut out = Array2::<f32>::zeros((t_len, width));
             for d in 0..dirs {
                 let cell = &self.cells[l * dirs + d];
-                let w_h = slice(&cell.w_h);
+                let w_h = GemvPacked::new(cell.w_h.view());
                 let b_h = cell.b_h.as_slice().expect("contiguous");
                 hcur.fill(0.0);
                 let n_blocks = t_len.div_ceil(BLOCK);
@@ -403,7 +403,7 @@ impl GruStack {
                     for i in 0..n {
                         let i = if d == 1 { n - 1 - i } else { i };
                         let t = t0 + i;
-                        gemv(&hcur, w_h, b_h, &mut gh);
+                        gemv_packed(&hcur, &w_h, b_h, &mut gh);
                         let o = &mut os[t * width + d * h..t * width + (d + 1) * h];
                         gate_forward_row(
                             &xs[i * 3 * h..(i + 1) * 3 * h],
