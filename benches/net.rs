@@ -43,6 +43,17 @@ fn fwd_flop_per_frame(c: GruConfig) -> f64 {
     f + 2.0 * c.outputs() as f64 * 7.0
 }
 
+/// CPU time used so far by the whole process (all threads), in seconds:
+/// on a machine shared with other jobs, frames per CPU-second shows what
+/// the code does when it runs, apart from how often it was scheduled.
+fn cpu_seconds() -> f64 {
+    // SAFETY: getrusage writes into the zeroed struct we pass.
+    let mut u: libc::rusage = unsafe { std::mem::zeroed() };
+    unsafe { libc::getrusage(libc::RUSAGE_SELF, &mut u) };
+    let tv = |t: libc::timeval| t.tv_sec as f64 + t.tv_usec as f64 * 1e-6;
+    tv(u.ru_utime) + tv(u.ru_stime)
+}
+
 fn median(v: &mut [f64]) -> f64 {
     v.sort_by(|a, b| a.total_cmp(b));
     v[v.len() / 2]
@@ -69,17 +80,21 @@ fn bench_train(bidirectional: bool, threads: usize, steps: usize) {
         .expect("thread pool");
     let mut adam = Adam::new(AdamConfig::default(), &net.param_sizes());
     let mut times = Vec::new();
+    let mut cpu = Vec::new();
     pool.install(|| {
         for i in 0..steps + 2 {
+            let c0 = cpu_seconds();
             let t0 = Instant::now();
             let mut r = net
                 .loss_and_grad(&views, &targets, threads)
                 .expect("valid batch");
             net.apply_gradients(&mut r.grads, &mut adam, 1e-3, 5.0);
             let dt = t0.elapsed().as_secs_f64();
+            let dc = cpu_seconds() - c0;
             assert!(r.loss.is_finite() && r.skipped == 0);
             if i >= 2 {
                 times.push(dt);
+                cpu.push(dc);
             }
         }
     });
@@ -89,12 +104,14 @@ fn bench_train(bidirectional: bool, threads: usize, steps: usize) {
     let dir = if bidirectional { "bi" } else { "uni" };
     println!(
         "train_{dir}_in{TAXELS}_h{HIDDEN}_l{LAYERS}_b{BATCH}_t{SEQ}_threads{threads}: \
-         step {:.1} ms, {:.0} frames/s, {:.1} GFLOP/s (min step {:.1} ms, {} steps)",
+         step {:.1} ms, {:.0} frames/s, {:.1} GFLOP/s (min step {:.1} ms, {} steps; \
+         {:.0} frames per CPU-second)",
         med * 1e3,
         fps,
         gflops,
         times[0] * 1e3,
-        times.len()
+        times.len(),
+        (BATCH * SEQ) as f64 / median(&mut cpu)
     );
 }
 

@@ -42,6 +42,19 @@ pub struct CtcLoss {
 
 /// CTC loss and gradient for one sequence.
 ///
+/// Runs the forward-backward recursions on probabilities rescaled at
+/// every frame (Graves et al. 2006, section 4.1, eq. 9-11; the same
+/// device as Rabiner's scaled HMM recursions), which needs only
+/// multiplications and adds and one `exp` per frame and extended label:
+/// each frame's emissions are first divided by the largest of them (a
+/// shift in log space), then `α_t` and `β_t` are normalised to sum to one
+/// and `ln p(l|x)` is the sum of the logarithms of the normalisers and
+/// shifts. The posteriors need no scale at all: `Σ_s α_t(s) β_t(s)` is the
+/// same `p(l|x)` at every frame, so `γ_t(s) = α̂_t(s) β̂_t(s) / Σ_s' α̂_t(s')
+/// β̂_t(s')` with the rescaled values. When a normaliser underflows
+/// (reachable states all far less likely than unreachable ones) it falls
+/// back to the log-space recursions of the module docs.
+///
 /// `log_probs`: `[T, C]` natural-log class probabilities per frame (for
 /// tactread `C = 65`, from [`crate::net::pattern_log_probs`]); `target`:
 /// the label sequence, each label in `0..C` and different from `blank`.
@@ -51,6 +64,181 @@ pub struct CtcLoss {
 ///
 /// Panics if a label is out of range or equals `blank`.
 pub fn ctc_loss(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> Option<CtcLoss> {
+    let (t_len, c) = log_probs.dim();
+    assert!(blank < c, "blank index out of range");
+    assert!(
+        target.iter().all(|&k| k < c && k != blank),
+        "CTC target label out of range or blank"
+    );
+    let repeats = target.windows(2).filter(|w| w[0] == w[1]).count();
+    if t_len == 0 || target.len() + repeats > t_len {
+        return None;
+    }
+    match ctc_scaled(log_probs, target, blank) {
+        Scaled::Done(r) => Some(r),
+        Scaled::Underflow => ctc_loss_log(log_probs, target, blank),
+    }
+}
+
+/// What the rescaled recursions gave.
+enum Scaled {
+    Done(CtcLoss),
+    Underflow,
+}
+
+/// Normalisers below this are treated as underflow (far above the
+/// smallest normal f64, 2.2e-308, so products of two stay normal).
+const TINY: f64 = 1e-150;
+
+thread_local! {
+    /// Each thread's buffers for [`ctc_scaled`] (emissions, alpha, beta),
+    /// reused across calls: fresh ones of this size (hundreds of KiB)
+    /// would be mapped and zeroed by the operating system at every call.
+    static BUFFERS: std::cell::RefCell<[Vec<f64>; 3]> = const {
+        std::cell::RefCell::new([Vec::new(), Vec::new(), Vec::new()])
+    };
+}
+
+/// The rescaled forward-backward of [`ctc_loss`] (inputs already checked).
+fn ctc_scaled(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> Scaled {
+    BUFFERS
+        .with_borrow_mut(|[y, alpha, beta]| ctc_scaled_in(log_probs, target, blank, y, alpha, beta))
+}
+
+/// [`ctc_scaled`] with its three `[T, S]` buffers passed in (any length
+/// and contents on entry).
+fn ctc_scaled_in(
+    log_probs: ArrayView2<f32>,
+    target: &[usize],
+    blank: usize,
+    y: &mut Vec<f64>,
+    alpha: &mut Vec<f64>,
+    beta: &mut Vec<f64>,
+) -> Scaled {
+    let (t_len, c) = log_probs.dim();
+    let s_len = 2 * target.len() + 1;
+    let label = |s: usize| {
+        if s.is_multiple_of(2) {
+            blank
+        } else {
+            target[s / 2]
+        }
+    };
+    let skip: Vec<bool> = (0..s_len)
+        .map(|s| s >= 2 && s % 2 == 1 && label(s) != label(s - 2))
+        .collect();
+    // Emissions y_t(l'_s) / max_s y_t(l'_s), `[T, S]`, and the shifts.
+    y.clear();
+    y.resize(t_len * s_len, 0.0);
+    let mut shift = vec![0.0f64; t_len];
+    for t in 0..t_len {
+        let row = log_probs.row(t);
+        let lp = |s: usize| row[label(s)] as f64;
+        let m = (0..s_len).map(lp).fold(f64::NEG_INFINITY, f64::max);
+        if !m.is_finite() {
+            return Scaled::Underflow;
+        }
+        shift[t] = m;
+        for s in 0..s_len {
+            y[t * s_len + s] = (lp(s) - m).exp();
+        }
+    }
+    // Forward: alpha rescaled to sum 1 at each frame.
+    alpha.clear();
+    alpha.resize(t_len * s_len, 0.0);
+    let mut log_p = 0.0f64;
+    alpha[0] = y[0];
+    if s_len > 1 {
+        alpha[1] = y[1];
+    }
+    for t in 0..t_len {
+        if t > 0 {
+            let (prev, cur) = alpha.split_at_mut(t * s_len);
+            let prev = &prev[(t - 1) * s_len..];
+            let yt = &y[t * s_len..(t + 1) * s_len];
+            for s in 0..s_len {
+                let mut a = prev[s];
+                if s >= 1 {
+                    a += prev[s - 1];
+                }
+                if skip[s] {
+                    a += prev[s - 2];
+                }
+                cur[s] = a * yt[s];
+            }
+        }
+        let row = &mut alpha[t * s_len..(t + 1) * s_len];
+        let norm: f64 = row.iter().sum();
+        if norm < TINY {
+            return Scaled::Underflow;
+        }
+        row.iter_mut().for_each(|v| *v /= norm);
+        log_p += norm.ln() + shift[t];
+    }
+    // p(l|x) = α_{T-1}(S-1) + α_{T-1}(S-2), here relative to the last
+    // frame's normaliser.
+    let last = &alpha[(t_len - 1) * s_len..];
+    let end = last[s_len - 1] + if s_len > 1 { last[s_len - 2] } else { 0.0 };
+    if end < TINY {
+        // Too unlikely to represent here (or no alignment at all): the
+        // log-space recursions decide.
+        return Scaled::Underflow;
+    }
+    log_p += end.ln();
+    // Backward: beta (excluding frame t's emission) rescaled likewise.
+    beta.clear();
+    beta.resize(t_len * s_len, 0.0);
+    beta[(t_len - 1) * s_len + s_len - 1] = 1.0;
+    if s_len > 1 {
+        beta[(t_len - 1) * s_len + s_len - 2] = 1.0;
+    }
+    for t in (0..t_len - 1).rev() {
+        let (cur, next) = beta.split_at_mut((t + 1) * s_len);
+        let cur = &mut cur[t * s_len..];
+        let next = &next[..s_len];
+        let yn = &y[(t + 1) * s_len..(t + 2) * s_len];
+        let mut norm = 0.0;
+        for s in 0..s_len {
+            let mut v = next[s] * yn[s];
+            if s + 1 < s_len {
+                v += next[s + 1] * yn[s + 1];
+            }
+            if s + 2 < s_len && skip[s + 2] {
+                v += next[s + 2] * yn[s + 2];
+            }
+            cur[s] = v;
+            norm += v;
+        }
+        if norm < TINY {
+            return Scaled::Underflow;
+        }
+        cur.iter_mut().for_each(|v| *v /= norm);
+    }
+    // Posteriors per frame.
+    let mut grad = Array2::<f32>::zeros((t_len, c));
+    let floor = (-100.0f64).exp();
+    for t in 0..t_len {
+        let a = &alpha[t * s_len..(t + 1) * s_len];
+        let b = &beta[t * s_len..(t + 1) * s_len];
+        let z: f64 = a.iter().zip(b).map(|(x, y)| x * y).sum();
+        if z < TINY {
+            return Scaled::Underflow;
+        }
+        let mut g = grad.row_mut(t);
+        for s in 0..s_len {
+            let post = a[s] * b[s] / z;
+            if post > floor {
+                g[label(s)] -= post as f32;
+            }
+        }
+    }
+    Scaled::Done(CtcLoss { loss: -log_p, grad })
+}
+
+/// The log-space forward-backward (the recursions of the module docs, all
+/// sums log-sum-exp in f64): the fallback of [`ctc_loss`] and the
+/// reference its tests compare with.
+fn ctc_loss_log(log_probs: ArrayView2<f32>, target: &[usize], blank: usize) -> Option<CtcLoss> {
     let (t_len, c) = log_probs.dim();
     assert!(blank < c, "blank index out of range");
     assert!(
@@ -270,6 +458,44 @@ mod tests {
                 assert_relative_eq!(r.grad[[t, k]] as f64, numeric, epsilon = 2e-3);
             }
         }
+    }
+
+    /// The rescaled recursions against the log-space ones (the
+    /// definition's log-sum-exp form) on random and lopsided inputs.
+    #[test]
+    fn rescaled_recursions_match_log_space() {
+        let mut rng = ChaCha8Rng::seed_from_u64(31);
+        for &(t, c, l) in &[(50usize, 65usize, 10usize), (400, 65, 40), (9, 5, 4)] {
+            for sharp in [1.0f32, 30.0] {
+                let mut lp = random_log_probs(t, c, &mut rng);
+                lp.mapv_inplace(|v| v * sharp);
+                let target: Vec<usize> = (0..l).map(|_| rng.gen_range(0..c - 1)).collect();
+                let fast = ctc_loss(lp.view(), &target, c - 1);
+                let slow = ctc_loss_log(lp.view(), &target, c - 1);
+                let (fast, slow) = match (fast, slow) {
+                    (Some(f), Some(s)) => (f, s),
+                    (None, None) => continue,
+                    _ => panic!("one recursion found an alignment, the other not"),
+                };
+                assert_relative_eq!(fast.loss, slow.loss, max_relative = 1e-9, epsilon = 1e-9);
+                for (a, b) in fast.grad.iter().zip(slow.grad.iter()) {
+                    assert_relative_eq!(*a, *b, epsilon = 1e-6);
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn underflow_falls_back_to_log_space() {
+        // Target "0 1", two frames: at frame 0 the reachable states (blank,
+        // 0) have probability e^-900 while the unreachable label 1 has 1,
+        // so the rescaled alpha underflows to zero; the log-space result
+        // is -ln(e^-900 · y_1(1)) = 900 + 0.5 exactly here.
+        let lp = array![[-900.0f32, 0.0, -900.0], [-900.0, -0.5, -900.0]];
+        let r = ctc_loss(lp.view(), &[0, 1], 2).unwrap();
+        assert_relative_eq!(r.loss, 900.5, max_relative = 1e-9);
+        assert_relative_eq!(r.grad[[0, 0]], -1.0, epsilon = 1e-6);
+        assert_relative_eq!(r.grad[[1, 1]], -1.0, epsilon = 1e-6);
     }
 
     #[test]

@@ -92,18 +92,32 @@ impl Head {
     }
 
     /// Adds the parameter gradients for input `x` `[N, n_in]` and
-    /// `d_logits` `[N, 7]` to `grad`, and returns `∂L/∂x` `[N, n_in]`.
+    /// `d_logits` `[N, 7]` to `grad`, and returns `∂L/∂x` `[N, n_in]`
+    /// (training uses [`Self::backward_into`]).
+    #[cfg(test)]
     pub(crate) fn backward(
         &self,
         x: ArrayView2<f32>,
         d_logits: ArrayView2<f32>,
         grad: &mut Head,
     ) -> Array2<f32> {
+        let mut dx = Array2::zeros(x.dim());
+        self.backward_into(x, d_logits, grad, &mut dx);
+        dx
+    }
+
+    /// [`Self::backward`] writing `∂L/∂x` into `dx` `[N, n_in]` (any prior
+    /// contents are overwritten).
+    pub(crate) fn backward_into(
+        &self,
+        x: ArrayView2<f32>,
+        d_logits: ArrayView2<f32>,
+        grad: &mut Head,
+        dx: &mut Array2<f32>,
+    ) {
         gemm(x.t(), d_logits, 1.0, &mut grad.w.view_mut());
         grad.b += &d_logits.sum_axis(Axis(0));
-        let mut dx = Array2::zeros(x.dim());
         gemm(d_logits, self.w.t(), 0.0, &mut dx.view_mut());
-        dx
     }
 
     pub(crate) fn params(&self) -> Vec<&[f32]> {

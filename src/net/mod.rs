@@ -11,7 +11,7 @@
 //! | `optim.rs` | Adam, gradient clipping, learning-rate schedule |
 //! | `network.rs` | `Network`: GRU + head, loss and gradient over threads |
 //! | `model.rs` | the model file: format tag, architecture, preprocessing, parameters |
-//! | `kernels.rs` | fast exp/sigmoid/tanh, batch-1 matrix-vector kernel |
+//! | `kernels.rs` | fast exp/sigmoid/tanh, batch-1 matrix-vector kernel, few-row and blocked GEMM kernels |
 
 mod ctc;
 mod gru;

@@ -3,7 +3,7 @@
 //! gradient computed data-parallel over shards of a batch.
 
 use super::ctc::ctc_loss;
-use super::gru::{GruConfig, GruStack, GruState};
+use super::gru::{GruConfig, GruStack, GruState, Scratch};
 use super::head::{pattern_log_probs, pattern_log_probs_backward, Head, BLANK, N_LOGITS};
 use super::optim::{clip_global_norm, Adam};
 use crate::{Error, Result};
@@ -267,21 +267,35 @@ impl Network {
         idx: &[usize],
         scale: f64,
     ) -> (f64, usize, Network) {
-        let mut grads = self.zeros_like();
         if idx.is_empty() {
-            return (0.0, 0, grads);
+            return (0.0, 0, self.zeros_like());
         }
         let (x, lengths) = time_major(batch, idx, self.gru.config().inputs);
+        SCRATCH.with_borrow_mut(|pool| self.shard_loss_in(&x, &lengths, targets, idx, scale, pool))
+    }
+
+    /// [`Self::shard_loss`] on the time-major batch `x` `[T, B, inputs]`,
+    /// with the large buffers taken from (and given back to) `pool`.
+    fn shard_loss_in(
+        &self,
+        x: &Array3<f32>,
+        lengths: &[usize],
+        targets: &[&[usize]],
+        idx: &[usize],
+        scale: f64,
+        pool: &mut Scratch,
+    ) -> (f64, usize, Network) {
+        let mut grads = self.zeros_like();
         let (t_len, b) = (x.dim().0, x.dim().1);
         let width = self.gru.config().outputs();
-        let tape = self.gru.forward_train(x.view(), &lengths);
+        let tape = self.gru.forward_train(x.view(), lengths, pool);
         let top = tape
             .output()
             .view()
             .into_shape_with_order((t_len * b, width))
             .expect("standard layout reshapes");
         let z = self.head.logits(top);
-        let mut dz = Array2::<f32>::zeros((t_len * b, N_LOGITS));
+        let mut dz = pool.take2(t_len * b, N_LOGITS, true);
         let mut nll = 0.0;
         let mut skipped = 0;
         for (col, &i) in idx.iter().enumerate() {
@@ -299,11 +313,17 @@ impl Network {
                 _ => skipped += 1,
             }
         }
-        let d_top = self.head.backward(top, dz.view(), &mut grads.head);
+        let mut d_top = pool.take2(t_len * b, width, false);
+        self.head
+            .backward_into(top, dz.view(), &mut grads.head, &mut d_top);
         let d_top = d_top
             .into_shape_with_order((t_len, b, width))
             .expect("standard layout reshapes");
-        self.gru.backward(&tape, &d_top, &mut grads.gru, false);
+        self.gru
+            .backward(&tape, &d_top, &mut grads.gru, false, pool);
+        pool.put3(d_top);
+        pool.put2(dz);
+        tape.recycle(pool);
         (nll, skipped, grads)
     }
 
@@ -321,6 +341,14 @@ impl Network {
         adam.update(&mut self.params_mut(), &g, lr);
         norm
     }
+}
+
+thread_local! {
+    /// Each worker thread's buffer pool for training steps (see
+    /// [`Scratch`]): it lives as long as the thread, so the rayon pool of
+    /// a training run reuses the same buffers at every step and frees them
+    /// when the run ends.
+    static SCRATCH: std::cell::RefCell<Scratch> = std::cell::RefCell::new(Scratch::default());
 }
 
 /// `idx` sorted by decreasing sequence length (stable).
