@@ -26,6 +26,9 @@
 //! | alignment, accuracies, calibration, bootstrap intervals, comparisons | [`metrics`] |
 //! | HTML report and recording view (SVG) | [`report`] |
 //! | streaming: raw frames in, final words out, bounded memory | [`stream`] |
+//! | many recordings read in parallel | [`batch`] |
+//! | the whole reading of one recording | [`pipeline`] |
+//! | atomic writes, output checks, UTF-8 text files | [`fsutil`] |
 //!
 //! ## Example: text to cells and back
 //!
