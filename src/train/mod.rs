@@ -36,33 +36,33 @@ use std::time::Instant;
 /// Training options. Defaults in brackets.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct TrainConfig {
-    /// Hidden units per direction [128].
+    /// Hidden units per direction (default 128).
     pub hidden: usize,
-    /// GRU layers [2].
+    /// GRU layers (default 2).
     pub layers: usize,
-    /// Bidirectional layers (offline only) [false].
+    /// Bidirectional layers (offline only) (default false).
     pub bidirectional: bool,
-    /// Maximum epochs [40].
+    /// Maximum epochs (default 40).
     pub epochs: usize,
-    /// Peak learning rate [3e-3].
+    /// Peak learning rate (default 3e-3).
     pub lr: f32,
-    /// Sequences per mini-batch [32].
+    /// Sequences per mini-batch (default 32).
     pub batch: usize,
-    /// Random seed [1].
+    /// Random seed (default 1).
     pub seed: u64,
-    /// Threads, also the number of gradient shards [2].
+    /// Threads, also the number of gradient shards (default 2).
     pub threads: usize,
-    /// Global gradient-norm clip [5.0].
+    /// Global gradient-norm clip (default 5.0).
     pub clip: f32,
-    /// Stop after this many epochs without a better validation score [6].
+    /// Stop after this many epochs without a better validation score (default 6).
     pub patience: usize,
-    /// Stop starting new epochs after this many minutes [none].
+    /// Stop starting new epochs after this many minutes (default none).
     pub max_minutes: Option<f64>,
-    /// Position grid step in mm [0.5].
+    /// Position grid step in mm (default 0.5).
     pub step_mm: f64,
-    /// Time grid rate in Hz for recordings without positions [40].
+    /// Time grid rate in Hz for recordings without positions (default 40).
     pub rate_hz: f64,
-    /// Keep every k-th grid sample [1].
+    /// Keep every k-th grid sample (default 1).
     pub decimate: usize,
 }
 
