@@ -124,22 +124,7 @@ impl<'m, 'd, 'a, C: BrailleCode> StreamReader<'m, 'd, 'a, C> {
     /// Returns the number of network frames it produced (0 or more: the
     /// resampling grid decides).
     pub fn push(&mut self, coord: f64, frame: &[f32], out: &mut Vec<StreamWord>) -> Result<usize> {
-        if frame.len() != self.taxels {
-            return Err(Error::Mismatch {
-                what: "taxels per frame".into(),
-                expected: self.taxels.to_string(),
-                got: frame.len().to_string(),
-                hint: "use a model trained for this sensor's taxel count".into(),
-            });
-        }
-        self.samples.clear();
-        let n = self.resampler.push(coord, frame, &mut self.samples);
-        for sample in self.samples.chunks_exact(self.taxels) {
-            let z = self.network.step(&mut self.state, sample)?;
-            crate::net::pattern_log_probs_row(&z, &mut self.log_probs);
-            self.words.push(&self.log_probs, out)?;
-        }
-        Ok(n)
+        self.feed(coord, frame, |words, lp| words.push(lp, out))
     }
 
     /// [`Self::push`] without the rescoring: the commits are queued as
@@ -147,6 +132,17 @@ impl<'m, 'd, 'a, C: BrailleCode> StreamReader<'m, 'd, 'a, C> {
     /// [`stream_frames`] runs on a second thread so that a commit never
     /// holds up the next frame.
     pub fn step(&mut self, coord: f64, frame: &[f32]) -> Result<usize> {
+        self.feed(coord, frame, |words, lp| words.step(lp))
+    }
+
+    /// One raw frame through the resampler and the network; `search` sees
+    /// every network frame's log-probabilities `[65]`.
+    fn feed(
+        &mut self,
+        coord: f64,
+        frame: &[f32],
+        mut search: impl FnMut(&mut WordStream<'d, 'a, C>, &[f32]) -> Result<()>,
+    ) -> Result<usize> {
         if frame.len() != self.taxels {
             return Err(Error::Mismatch {
                 what: "taxels per frame".into(),
@@ -160,7 +156,7 @@ impl<'m, 'd, 'a, C: BrailleCode> StreamReader<'m, 'd, 'a, C> {
         for sample in self.samples.chunks_exact(self.taxels) {
             let z = self.network.step(&mut self.state, sample)?;
             crate::net::pattern_log_probs_row(&z, &mut self.log_probs);
-            self.words.step(&self.log_probs)?;
+            search(&mut self.words, &self.log_probs)?;
         }
         Ok(n)
     }
