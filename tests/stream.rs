@@ -17,7 +17,8 @@ fn model() -> String {
     root().join("models/default.json").display().to_string()
 }
 
-/// The English demo recordings (the default model is English-only).
+/// The English demo recordings (decoded with the default model and the
+/// English pack, which `decode --stream` uses when no --lang is given).
 fn english_demo() -> Vec<PathBuf> {
     let mut out = Vec::new();
     for split in ["train", "validation", "test"] {

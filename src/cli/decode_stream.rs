@@ -100,7 +100,17 @@ pub(crate) fn run(o: Options) -> Result<()> {
         ));
     }
     let model = super::load_model(&o.model)?;
-    let lang = o.lang.clone().unwrap_or_else(|| model.lang.clone());
+    // A recording file is read in the language its manifest names (stdin has
+    // no manifest: the model's language), unless --lang names one.
+    let lang = match (&o.lang, o.recordings.first()) {
+        (Some(l), _) => l.clone(),
+        (None, Some(path)) => tactread::recording::RecordingStream::open(path)?
+            .manifest()
+            .lang
+            .clone()
+            .unwrap_or_else(|| model.lang.clone()),
+        (None, None) => model.lang.clone(),
+    };
     let table = CodeTable::builtin(&lang)?;
     let lexicon = load_lexicon(o.lexicon.as_deref(), &lang)?;
     let beam = BeamParams {
