@@ -263,3 +263,18 @@ fn bidirectional_models_and_two_recordings_are_refused() {
     assert!(String::from_utf8_lossy(&r.stderr).contains("one recording"));
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+/// A recording file is streamed in the language its manifest names, as
+/// offline `decode` reads it: the German demo recording, whose text has
+/// `ä` (dots 345 in German braille, from memory; the English pack reads that cell
+/// otherwise), comes out the same both ways.
+#[test]
+fn a_recording_file_streams_in_its_manifest_language() {
+    let rec = root().join("demo-data/test/00013-de.json");
+    let r = tactread(&["decode", &model(), rec.to_str().unwrap(), "--stream"]);
+    assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
+    let streamed = collapse(&String::from_utf8_lossy(&r.stdout));
+    let offline = collapse(&offline_text(&rec));
+    assert_eq!(streamed, offline);
+    assert!(streamed.contains('ä'), "{streamed}");
+}
