@@ -248,6 +248,10 @@ pub struct GruState {
     xi: Vec<f32>,
     gh: Vec<f32>,
     cache: Vec<f32>,
+    /// Per layer: `W_i` and `W_h` packed for [`gemv_packed`] once, when the
+    /// state is made (the streaming step's products; same sums as `gemv`).
+    w_i: Vec<GemvPacked>,
+    w_h: Vec<GemvPacked>,
 }
 
 impl GruStack {
@@ -574,6 +578,16 @@ impl GruStack {
             xi: vec![0.0; 3 * h],
             gh: vec![0.0; 3 * h],
             cache: vec![0.0; 4 * h],
+            w_i: self
+                .cells
+                .iter()
+                .map(|c| GemvPacked::new(c.w_i.view()))
+                .collect(),
+            w_h: self
+                .cells
+                .iter()
+                .map(|c| GemvPacked::new(c.w_h.view()))
+                .collect(),
         })
     }
 
@@ -591,16 +605,16 @@ impl GruStack {
             let cell = &self.cells[l];
             {
                 let input: &[f32] = if l == 0 { frame } else { &state.h[l - 1] };
-                gemv(
+                gemv_packed(
                     input,
-                    slice(&cell.w_i),
+                    &state.w_i[l],
                     cell.b_i.as_slice().expect("contiguous"),
                     &mut state.xi,
                 );
             }
-            gemv(
+            gemv_packed(
                 &state.h[l],
-                slice(&cell.w_h),
+                &state.w_h[l],
                 cell.b_h.as_slice().expect("contiguous"),
                 &mut state.gh,
             );

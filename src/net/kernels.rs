@@ -246,6 +246,7 @@ unsafe fn gemv_avx2(x: &[f32], w: &[f32], bias: &[f32], y: &mut [f32]) {
 /// of 128 columns (the last one narrower), each block `k` rows of its
 /// width contiguously, so the AVX-512 kernel reads the matrix as one
 /// sequential stream instead of 512-byte pieces a row stride apart.
+#[derive(Debug, Clone)]
 pub(crate) struct GemvPacked {
     k: usize,
     n: usize,
