@@ -4,7 +4,7 @@
 
 mod common;
 
-use common::cli::{s, scratch as temp_dir, tactread};
+use common::cli::{s, scratch as temp_dir, simulate_clean_dataset, tactread, tiny_train_args};
 use common::{synthetic_set, toy_recording};
 use std::path::{Path, PathBuf};
 use tactread::metrics::{evaluate, EvalSettings};
@@ -157,47 +157,9 @@ fn show_draws_a_recording_view() {
 fn evaluate_scores_a_dataset_and_writes_metrics_and_report() {
     let dir = temp_dir("evaluate");
     let data = dir.join("data");
-    let out = tactread(&[
-        "simulate",
-        "dataset",
-        "--lines",
-        "12",
-        "--preset",
-        "clean",
-        "--lang",
-        "en",
-        "--seed",
-        "5",
-        "--jobs",
-        "1",
-        "--out",
-        s(&data),
-    ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    simulate_clean_dataset(&data, "12", "5", &["--lang", "en"]);
     let model = dir.join("m.json");
-    let out = tactread(&[
-        "train",
-        "--data",
-        s(&data),
-        "--out",
-        s(&model),
-        "--epochs",
-        "1",
-        "--hidden",
-        "8",
-        "--layers",
-        "1",
-        "--batch",
-        "8",
-        "--threads",
-        "1",
-        "--step-mm",
-        "1.0",
-    ]);
+    let out = tactread(&tiny_train_args(s(&data), s(&model), "1", "1"));
     assert!(
         out.status.success(),
         "{}",

@@ -7,7 +7,7 @@
 
 mod common;
 
-use common::cli::{s, scratch, stderr, tactread};
+use common::cli::{s, scratch, simulate_clean_dataset, stderr, tactread};
 use std::path::{Path, PathBuf};
 use std::process::Output;
 
@@ -33,24 +33,12 @@ fn ok(o: &Output) {
 /// A small dataset of simulated English lines in `dir/data`.
 fn dataset(dir: &Path) -> PathBuf {
     let data = dir.join("data");
-    ok(&tactread(&[
-        "simulate",
-        "dataset",
-        "--lines",
+    simulate_clean_dataset(
+        &data,
         "6",
-        "--preset",
-        "clean",
-        "--lang",
-        "en",
-        "--seed",
         "2",
-        "--jobs",
-        "1",
-        "--split",
-        "0.5,0.25,0.25",
-        "--out",
-        s(&data),
-    ]));
+        &["--lang", "en", "--split", "0.5,0.25,0.25"],
+    );
     data
 }
 

@@ -7,7 +7,7 @@
 
 mod common;
 
-use common::cli::{s, scratch, stderr, tactread};
+use common::cli::{s, scratch, simulate_clean_dataset, stderr, tactread};
 use std::io::{BufRead, BufReader};
 use std::path::Path;
 use std::process::{Command, Stdio};
@@ -75,23 +75,7 @@ fn killed_mid_epoch_resumes_from_its_checkpoint_and_matches_an_uninterrupted_run
     use std::os::unix::process::ExitStatusExt;
     let dir = scratch("kill");
     let data = dir.join("data");
-    let sim = tactread(&[
-        "simulate",
-        "dataset",
-        "--lines",
-        "24",
-        "--preset",
-        "clean",
-        "--lang",
-        "en",
-        "--seed",
-        "5",
-        "--jobs",
-        "1",
-        "--out",
-        s(&data),
-    ]);
-    assert!(sim.status.success(), "{}", stderr(&sim));
+    simulate_clean_dataset(&data, "24", "5", &["--lang", "en"]);
 
     // The uninterrupted run.
     let full = dir.join("full.json");

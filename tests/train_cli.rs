@@ -4,53 +4,15 @@
 
 mod common;
 
-use common::cli::{s, scratch, tactread};
+use common::cli::{s, scratch, simulate_clean_dataset, tactread, tiny_train_args};
 
 #[test]
 fn trains_a_small_model_and_reports_test_figures() {
     let dir = scratch("ok");
     let data = dir.join("data");
-    let out = tactread(&[
-        "simulate",
-        "dataset",
-        "--lines",
-        "20",
-        "--preset",
-        "clean",
-        "--lang",
-        "en",
-        "--seed",
-        "3",
-        "--jobs",
-        "1",
-        "--out",
-        s(&data),
-    ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    simulate_clean_dataset(&data, "20", "3", &["--lang", "en"]);
     let model = dir.join("m.json");
-    let args = [
-        "train",
-        "--data",
-        s(&data),
-        "--out",
-        s(&model),
-        "--epochs",
-        "2",
-        "--hidden",
-        "8",
-        "--layers",
-        "1",
-        "--batch",
-        "8",
-        "--threads",
-        "2",
-        "--step-mm",
-        "1.0",
-    ];
+    let args = tiny_train_args(s(&data), s(&model), "2", "2");
     let out = tactread(&args);
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(out.status.success(), "{err}");
@@ -96,25 +58,7 @@ fn a_dataset_in_several_languages_trains_one_model() {
     // (German `ß` exists in the de table only, for example).
     let dir = scratch("multi");
     let data = dir.join("data");
-    let out = tactread(&[
-        "simulate",
-        "dataset",
-        "--lines",
-        "24",
-        "--preset",
-        "clean",
-        "--seed",
-        "5",
-        "--jobs",
-        "1",
-        "--out",
-        s(&data),
-    ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    simulate_clean_dataset(&data, "24", "5", &[]);
     let index: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(data.join("index.json")).unwrap()).unwrap();
     let mut langs: Vec<String> = index["recordings"]
@@ -131,25 +75,7 @@ fn a_dataset_in_several_languages_trains_one_model() {
     );
 
     let model = dir.join("m.json");
-    let out = tactread(&[
-        "train",
-        "--data",
-        s(&data),
-        "--out",
-        s(&model),
-        "--epochs",
-        "1",
-        "--hidden",
-        "8",
-        "--layers",
-        "1",
-        "--batch",
-        "8",
-        "--threads",
-        "1",
-        "--step-mm",
-        "1.0",
-    ]);
+    let out = tactread(&tiny_train_args(s(&data), s(&model), "1", "1"));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(out.status.success(), "{err}");
     assert!(err.contains(&langs.join(", ")), "{err}");

@@ -73,3 +73,46 @@ pub fn stderr(o: &Output) -> String {
 pub fn stdout(o: &Output) -> String {
     String::from_utf8_lossy(&o.stdout).into_owned()
 }
+
+/// `tactread simulate dataset` of `lines` lines on the `clean` preset with
+/// seed `seed` and one thread into `data`, plus `extra` options (e.g.
+/// `--lang en`); fails the test with the command's message if it fails.
+pub fn simulate_clean_dataset(data: &Path, lines: &str, seed: &str, extra: &[&str]) {
+    let mut args = vec![
+        "simulate", "dataset", "--lines", lines, "--preset", "clean", "--seed", seed, "--jobs", "1",
+    ];
+    args.extend_from_slice(extra);
+    args.extend_from_slice(&["--out", s(data)]);
+    let out = tactread(&args);
+    assert!(out.status.success(), "{}", stderr(&out));
+}
+
+/// `tactread train` arguments for a tiny, quick network (8 hidden units,
+/// one layer, batches of 8, a 1 mm grid) trained for `epochs` epochs on
+/// `threads` threads.
+pub fn tiny_train_args<'a>(
+    data: &'a str,
+    out: &'a str,
+    epochs: &'a str,
+    threads: &'a str,
+) -> Vec<&'a str> {
+    vec![
+        "train",
+        "--data",
+        data,
+        "--out",
+        out,
+        "--epochs",
+        epochs,
+        "--hidden",
+        "8",
+        "--layers",
+        "1",
+        "--batch",
+        "8",
+        "--threads",
+        threads,
+        "--step-mm",
+        "1.0",
+    ]
+}
