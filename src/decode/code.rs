@@ -10,6 +10,9 @@ impl CodeReader for CellReader<'_> {
     fn push(&mut self, cell: Cell) -> String {
         CellReader::push(self, cell)
     }
+    fn push_into(&mut self, cell: Cell, out: &mut String) {
+        CellReader::push_into(self, cell, out);
+    }
     fn state(&self) -> ReaderState {
         CellReader::state(self)
     }

@@ -6,7 +6,7 @@
 //! the CTC blank (Graves et al. 2006).
 
 use crate::{Error, Location, Result};
-use ndarray::ArrayView2;
+use ndarray::{ArrayView1, ArrayView2};
 
 /// Number of columns of the decoder's input: 64 cell patterns + blank.
 pub const N_CLASSES: usize = 65;
@@ -129,42 +129,69 @@ pub(crate) fn prune(
         all: Vec::with_capacity(n * 64),
     };
     out.start.push(0);
-    let mut row_c: Vec<(u8, f64)> = Vec::with_capacity(64);
     for (t, row) in log_probs.outer_iter().enumerate() {
-        check_value(t, BLANK, row[BLANK])?;
-        let blank = (row[BLANK] as f64).exp();
-        out.blank.push(blank);
-        row_c.clear();
-        let skip = blank > blank_skip;
-        let (mut top, mut top_p) = (0u8, -1f64);
-        let mut sum = blank;
-        for m in 0..64 {
-            check_value(t, m, row[m])?;
-            let p = (row[m] as f64).exp();
-            sum += p;
-            out.all.push(p);
-            if !skip {
-                if p >= min_prob {
-                    row_c.push((m as u8, p));
-                }
-                if p > top_p {
-                    (top, top_p) = (m as u8, p);
-                }
-            }
-        }
-        check_sum(t, sum)?;
-        if !skip && row_c.is_empty() && top_p > 0.0 {
-            row_c.push((top, top_p));
-        }
-        row_c.sort_unstable_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
-        row_c.truncate(max_classes);
-        for &(m, p) in &row_c {
-            out.class.push(m);
-            out.prob.push(p);
-        }
-        out.start.push(out.class.len());
+        push_frame(&mut out, t, &row, min_prob, max_classes, blank_skip)?;
     }
     Ok(out)
+}
+
+/// Check and prune one `[65]` row (as [`prune`]) and append it to `out`,
+/// without allocating beyond `out`'s own growth. `t` numbers the frame in
+/// error messages (line `t + 1`). On an error `out` is left unchanged.
+pub(crate) fn push_frame(
+    out: &mut Pruned,
+    t: usize,
+    row: &ArrayView1<f32>,
+    min_prob: f64,
+    max_classes: usize,
+    blank_skip: f64,
+) -> Result<()> {
+    if row.len() != N_CLASSES {
+        return Err(Error::Mismatch {
+            what: "values in a frame of the decoder input".into(),
+            expected: format!("{N_CLASSES} (64 cell patterns, then the CTC blank)"),
+            got: row.len().to_string(),
+            hint: "pass the network's 65 log-probabilities per frame".into(),
+        });
+    }
+    check_value(t, BLANK, row[BLANK])?;
+    let blank = (row[BLANK] as f64).exp();
+    let skip = blank > blank_skip;
+    let (mut top, mut top_p) = (0u8, -1f64);
+    let mut sum = blank;
+    let mut probs = [0f64; 64];
+    let mut cands = [(0u8, 0f64); 64];
+    let mut n_cands = 0;
+    for (m, p_out) in probs.iter_mut().enumerate() {
+        check_value(t, m, row[m])?;
+        let p = (row[m] as f64).exp();
+        sum += p;
+        *p_out = p;
+        if !skip {
+            if p >= min_prob {
+                cands[n_cands] = (m as u8, p);
+                n_cands += 1;
+            }
+            if p > top_p {
+                (top, top_p) = (m as u8, p);
+            }
+        }
+    }
+    check_sum(t, sum)?;
+    if !skip && n_cands == 0 && top_p > 0.0 {
+        cands[0] = (top, top_p);
+        n_cands = 1;
+    }
+    let cands = &mut cands[..n_cands];
+    cands.sort_unstable_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    out.blank.push(blank);
+    out.all.extend_from_slice(&probs);
+    for &(m, p) in cands.iter().take(max_classes) {
+        out.class.push(m);
+        out.prob.push(p);
+    }
+    out.start.push(out.class.len());
+    Ok(())
 }
 
 #[cfg(test)]

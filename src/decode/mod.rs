@@ -79,6 +79,11 @@ pub trait CodeReader: Clone {
     /// Read one more cell; returns the text it produced (empty for an
     /// indicator).
     fn push(&mut self, cell: Cell) -> String;
+    /// Like [`CodeReader::push`], appending the text to `out` (the search
+    /// calls this once per new prefix, so readers should not allocate).
+    fn push_into(&mut self, cell: Cell, out: &mut String) {
+        out.push_str(&self.push(cell));
+    }
     /// The current state.
     fn state(&self) -> Self::State;
     /// End of input: any text still held back.

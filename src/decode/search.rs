@@ -181,6 +181,7 @@ impl CodeReader for NoReader {
     fn push(&mut self, _cell: Cell) -> String {
         String::new()
     }
+    fn push_into(&mut self, _cell: Cell, _out: &mut String) {}
     fn state(&self) -> Self::State {}
     fn finish(self) -> String {
         String::new()
@@ -197,8 +198,10 @@ pub(crate) struct Found {
     pub log_score: f64,
 }
 
-const NO_CELL: u8 = u8::MAX;
-const ROOT: u32 = 0;
+/// Label of the cell tree's root (no cell).
+pub(crate) const NO_CELL: u8 = u8::MAX;
+/// The root of both prefix trees: the empty prefix and the empty text.
+pub(crate) const ROOT: u32 = 0;
 /// `Hyp::cnode` of an extension whose tree node is not made yet.
 const PENDING: u32 = u32::MAX;
 /// End of a child or sibling list.
@@ -207,59 +210,80 @@ const NIL: u32 = u32::MAX;
 /// search instead of hashing.
 const LINEAR_MERGE: usize = 48;
 
-/// A prefix tree: node `i` has a parent and a label; node 0 is the empty
-/// prefix. Each node keeps its children as a linked list (first child,
-/// next sibling): a node has few children, so walking the list is cheaper
-/// than hashing `(parent, label)`.
-struct Trie<T: Eq + Clone> {
-    nodes: Vec<TrieNode<T>>,
-}
-
-struct TrieNode<T> {
-    parent: u32,
-    label: T,
+/// A node of the prefix tree of cells: its parent, its cell's mask, its
+/// children as a linked list (first child, next sibling: a node has few
+/// children, so walking the list is cheaper than hashing `(parent, mask)`),
+/// and what the streaming commit rule needs (`depth`, `space_depth`,
+/// `born`).
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct CellNode {
+    pub parent: u32,
+    pub mask: u8,
     first_child: u32,
     next_sibling: u32,
+    /// Cells from the root.
+    pub depth: u32,
+    /// Depth of the deepest space cell on the path (this node included); 0
+    /// when there is none.
+    pub space_depth: u32,
+    /// Frame at which the node was made.
+    pub born: u64,
 }
 
-impl<T: Eq + Clone> Trie<T> {
-    fn new(root_label: T) -> Self {
-        Trie {
-            nodes: vec![TrieNode {
+/// The prefix tree of cells; node [`ROOT`] is the empty prefix.
+#[derive(Debug, Clone)]
+pub(crate) struct CellTree {
+    pub nodes: Vec<CellNode>,
+}
+
+impl CellTree {
+    fn new(born: u64) -> Self {
+        CellTree {
+            nodes: vec![CellNode {
                 parent: ROOT,
-                label: root_label,
+                mask: NO_CELL,
                 first_child: NIL,
                 next_sibling: NIL,
+                depth: 0,
+                space_depth: 0,
+                born,
             }],
         }
     }
-    /// The child of `parent` with `label`, made if new.
-    fn child(&mut self, parent: u32, label: T) -> u32 {
-        let mut k = self.nodes[parent as usize].first_child;
+
+    /// The child of `parent` with cell `mask`, made (born at `now`) if new.
+    pub fn child(&mut self, parent: u32, mask: u8, now: u64) -> u32 {
+        let p = self.nodes[parent as usize];
+        let mut k = p.first_child;
         while k != NIL {
             let node = &self.nodes[k as usize];
-            if node.label == label {
+            if node.mask == mask {
                 return k;
             }
             k = node.next_sibling;
         }
         let id = self.nodes.len() as u32;
-        let next_sibling = self.nodes[parent as usize].first_child;
-        self.nodes.push(TrieNode {
+        let depth = p.depth + 1;
+        self.nodes.push(CellNode {
             parent,
-            label,
+            mask,
             first_child: NIL,
-            next_sibling,
+            next_sibling: p.first_child,
+            depth,
+            space_depth: if mask == 0 { depth } else { p.space_depth },
+            born: now,
         });
         self.nodes[parent as usize].first_child = id;
         id
     }
-    /// Labels from the root to `node`, root excluded.
-    fn path(&self, mut node: u32) -> Vec<T> {
+
+    /// Cells from `from` (exclusive; an ancestor of `node`, or [`ROOT`]) to
+    /// `node`.
+    pub fn path(&self, mut node: u32, from: u32) -> Vec<Cell> {
         let mut out = Vec::new();
-        while node != ROOT {
+        while node != from && node != ROOT {
             let n = &self.nodes[node as usize];
-            out.push(n.label.clone());
+            out.push(Cell::from_mask(n.mask));
             node = n.parent;
         }
         out.reverse();
@@ -267,21 +291,116 @@ impl<T: Eq + Clone> Trie<T> {
     }
 }
 
+/// A piece of text one cell produced. Nearly all are a character or two,
+/// kept inline: the search makes one per new tree node, and allocating (and
+/// later freeing) tens of thousands of small strings would cost more than
+/// the search step itself.
+#[derive(Debug, Clone, PartialEq, Eq)]
+enum Piece {
+    Inline(u8, [u8; 14]),
+    Heap(Box<str>),
+}
+
+impl Piece {
+    fn new(s: &str) -> Piece {
+        let b = s.as_bytes();
+        if b.len() <= 14 {
+            let mut a = [0u8; 14];
+            a[..b.len()].copy_from_slice(b);
+            Piece::Inline(b.len() as u8, a)
+        } else {
+            Piece::Heap(s.into())
+        }
+    }
+
+    fn as_str(&self) -> &str {
+        match self {
+            // Always the bytes of a whole `&str` (see `new`).
+            Piece::Inline(n, a) => std::str::from_utf8(&a[..*n as usize]).unwrap_or_default(),
+            Piece::Heap(s) => s,
+        }
+    }
+}
+
+/// A node of the prefix tree of texts: the text of a node is its
+/// ancestors' pieces and its own, in order.
+#[derive(Debug, Clone)]
+struct TextNode {
+    parent: u32,
+    piece: Piece,
+    first_child: u32,
+    next_sibling: u32,
+}
+
+/// The prefix tree of texts; node [`ROOT`] is the empty text.
+#[derive(Debug, Clone)]
+pub(crate) struct TextTree {
+    nodes: Vec<TextNode>,
+}
+
+impl TextTree {
+    fn new() -> Self {
+        TextTree {
+            nodes: vec![TextNode {
+                parent: ROOT,
+                piece: Piece::new(""),
+                first_child: NIL,
+                next_sibling: NIL,
+            }],
+        }
+    }
+
+    /// The child of `parent` whose piece is `piece`, made if new.
+    fn child(&mut self, parent: u32, piece: &str) -> u32 {
+        let mut k = self.nodes[parent as usize].first_child;
+        while k != NIL {
+            let node = &self.nodes[k as usize];
+            if node.piece.as_str() == piece {
+                return k;
+            }
+            k = node.next_sibling;
+        }
+        let id = self.nodes.len() as u32;
+        let next_sibling = self.nodes[parent as usize].first_child;
+        self.nodes.push(TextNode {
+            parent,
+            piece: Piece::new(piece),
+            first_child: NIL,
+            next_sibling,
+        });
+        self.nodes[parent as usize].first_child = id;
+        id
+    }
+
+    /// The text from `from` (exclusive; an ancestor of `node`, or [`ROOT`])
+    /// to `node`.
+    pub fn text(&self, mut node: u32, from: u32) -> String {
+        let mut parts = Vec::new();
+        while node != from && node != ROOT {
+            let n = &self.nodes[node as usize];
+            parts.push(n.piece.as_str());
+            node = n.parent;
+        }
+        parts.reverse();
+        parts.concat()
+    }
+}
+
 /// A hypothesis: a node of the cell tree (or, for a new extension not yet
 /// in the tree, [`PENDING`] with the parent node in `from`), its last cell,
 /// and the probabilities of its alignments ending in a blank (`pb`) and in
 /// its last cell (`pnb`).
-#[derive(Clone, Copy)]
-struct Hyp {
-    cnode: u32,
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Hyp {
+    pub cnode: u32,
     from: u32,
-    last: u8,
-    pb: f64,
-    pnb: f64,
+    pub last: u8,
+    pub pb: f64,
+    pub pnb: f64,
 }
 
 impl Hyp {
-    fn total(&self) -> f64 {
+    pub fn total(&self) -> f64 {
         self.pb + self.pnb
     }
 }
@@ -294,14 +413,14 @@ fn keep_top(v: &mut Vec<Hyp>, k: usize) {
     }
 }
 
-/// Run the prefix beam search over pruned frames, starting from `reader`.
-/// With `merge`, hypotheses of equal text, state and last cell merge during
-/// the search; with `by_text`, the final hypotheses are grouped by text
-/// (their probabilities add). Results are sorted by decreasing score: every
-/// hypothesis of the final beam.
+/// The prefix beam search's state between frames: the trees of cells and
+/// texts, the reader after each cell node, and the beam. The offline search
+/// ([`search`]) runs [`BeamSearch::step`] over a whole recording; the
+/// streaming decoder (`super::stream`) runs the same step one frame at a
+/// time and cuts the trees at its commits.
 ///
-/// Within a frame hypotheses are keyed by their cell sequence (a node of a
-/// prefix tree of cells). The beam's prefixes are distinct, so an extension
+/// Within a frame hypotheses are keyed by their cell sequence (a node of
+/// the cell tree). The beam's prefixes are distinct, so an extension
 /// `h + c` can only meet another hypothesis of the frame if `h + c` is
 /// itself in the beam: each frame links every beam member to its parent in
 /// the beam (if there), and every other extension is new, with no lookup.
@@ -312,48 +431,114 @@ fn keep_top(v: &mut Vec<Hyp>, k: usize) {
 /// The result is the same, hypothesis for hypothesis, as hashing every
 /// extension (the reference search of `search_reference.rs`, compared in
 /// the tests).
-pub(crate) fn search<R: CodeReader>(
-    frames: &Pruned,
-    reader: R,
-    params: &BeamParams,
-    merge: bool,
-    by_text: bool,
-) -> Vec<Found> {
-    let mut cells: Trie<u8> = Trie::new(NO_CELL);
-    let mut texts: Trie<String> = Trie::new(String::new());
-    // Text node and reader after each cell-tree node, once computed; the
-    // root's is the initial reader.
-    let mut after: Vec<Option<(u32, R)>> = vec![Some((ROOT, reader))];
-    let mut beam: Vec<Hyp> = vec![Hyp {
-        cnode: ROOT,
-        from: ROOT,
-        last: NO_CELL,
-        pb: 1.0,
-        pnb: 0.0,
-    }];
-    let mut log_scale = 0f64;
-    let floor = (-params.score_margin).exp();
-    let mut next: Vec<Hyp> = Vec::new();
-    // Per frame, for beam member i: its entry in `next`, its first child in
-    // the beam, and its next sibling in the beam (beam indices).
-    let mut slot: Vec<usize> = Vec::new();
-    let mut kid: Vec<u32> = Vec::new();
-    let mut sib: Vec<u32> = Vec::new();
-    let mut member: FxMap<u32, u32> = FxMap::default();
-    let mut by_key: FxMap<(u32, R::State, u8), usize> = FxMap::default();
-    let mut keys: Vec<(u32, R::State, u8)> = Vec::new();
-    let mut merged: Vec<Hyp> = Vec::new();
+pub(crate) struct BeamSearch<R: CodeReader> {
+    pub cells: CellTree,
+    pub texts: TextTree,
+    /// Text node and reader after each cell node, once computed; the
+    /// root's is the initial reader.
+    pub after: Vec<Option<(u32, R)>>,
+    pub beam: Vec<Hyp>,
+    /// Natural log of the product of the per-frame rescaling factors.
+    log_scale: f64,
+    /// `e^-score_margin`: hypotheses below `floor` times the best go.
+    floor: f64,
+    /// Every hypothesis died (only possible with degenerate settings).
+    pub dead: bool,
+    // Per-frame buffers, kept to avoid allocating on every frame. For beam
+    // member i: its entry in `next`, its first child in the beam, and its
+    // next sibling in the beam (beam indices).
+    next: Vec<Hyp>,
+    slot: Vec<usize>,
+    kid: Vec<u32>,
+    sib: Vec<u32>,
+    member: FxMap<u32, u32>,
+    by_key: FxMap<(u32, R::State, u8), usize>,
+    keys: Vec<(u32, R::State, u8)>,
+    merged: Vec<Hyp>,
+    piece: String,
+}
 
-    for t in 0..frames.n_frames() {
+impl<R: CodeReader> BeamSearch<R> {
+    /// A search at the empty prefix, reading with `reader`, dropping
+    /// hypotheses more than `score_margin` nats below the best.
+    pub fn new(reader: R, score_margin: f64) -> Self {
+        BeamSearch {
+            cells: CellTree::new(0),
+            texts: TextTree::new(),
+            after: vec![Some((ROOT, reader))],
+            beam: vec![Hyp {
+                cnode: ROOT,
+                from: ROOT,
+                last: NO_CELL,
+                pb: 1.0,
+                pnb: 0.0,
+            }],
+            log_scale: 0.0,
+            floor: (-score_margin).exp(),
+            dead: false,
+            next: Vec::new(),
+            slot: Vec::new(),
+            kid: Vec::new(),
+            sib: Vec::new(),
+            member: FxMap::default(),
+            by_key: FxMap::default(),
+            keys: Vec::new(),
+            merged: Vec::new(),
+            piece: String::new(),
+        }
+    }
+
+    /// Empty both trees, keeping the beam: the root becomes a node born at
+    /// `born` with `reader`. The caller re-inserts the beam's paths with
+    /// [`CellTree::child`] and [`Self::ensure_after`].
+    pub fn clear_trees(&mut self, reader: R, born: u64) {
+        self.cells = CellTree::new(born);
+        self.texts = TextTree::new();
+        self.after.clear();
+        self.after.push(Some((ROOT, reader)));
+    }
+
+    /// Compute the text node and reader after `node` if not yet known (its
+    /// parent's must be).
+    pub fn ensure_after(&mut self, node: u32) {
+        let n = node as usize;
+        if self.after.len() <= n {
+            self.after.resize_with(n + 1, || None);
+        }
+        if self.after[n].is_some() {
+            return;
+        }
+        let CellNode { parent, mask, .. } = self.cells.nodes[n];
+        let Some((ptext, preader)) = &self.after[parent as usize] else {
+            return;
+        };
+        let (ptext, mut r) = (*ptext, preader.clone());
+        self.piece.clear();
+        r.push_into(Cell::from_mask(mask), &mut self.piece);
+        let tnode = if self.piece.is_empty() {
+            ptext
+        } else {
+            self.texts.child(ptext, &self.piece)
+        };
+        self.after[n] = Some((tnode, r));
+    }
+
+    /// One frame: `t` indexes `frames`; `now` (the frame's number in the
+    /// whole stream) is recorded as the birth of new cell nodes.
+    pub fn step(&mut self, frames: &Pruned, t: usize, now: u64, beam_width: usize, merge: bool) {
+        if self.dead {
+            return;
+        }
         let blank = frames.blank[t];
         let (cands, probs) = frames.candidates(t);
         let row = frames.row(t);
+        let floor = self.floor;
         if cands.is_empty() {
             // A frame that tries no extension (blank above `blank_skip`):
             // every prefix only stays, so the set of hypotheses is unchanged
             // and needs no hashing, merging or cutting.
             let mut max = 0f64;
-            for h in beam.iter_mut() {
+            for h in self.beam.iter_mut() {
                 let total = h.total();
                 h.pnb = if h.last == NO_CELL {
                     0.0
@@ -364,19 +549,22 @@ pub(crate) fn search<R: CodeReader>(
                 max = max.max(h.total());
             }
             if !(max > 0.0 && max.is_finite()) {
-                return Vec::new();
+                self.die();
+                return;
             }
-            log_scale += max.ln();
+            self.log_scale += max.ln();
             let inv = 1.0 / max;
-            for h in beam.iter_mut() {
+            for h in self.beam.iter_mut() {
                 h.pb *= inv;
                 h.pnb *= inv;
             }
-            beam.retain(|h| h.total() >= floor);
-            continue;
+            self.beam.retain(|h| h.total() >= floor);
+            return;
         }
         // Link the beam members to their parents in the beam.
+        let beam = &self.beam;
         let n = beam.len();
+        let (slot, kid, sib) = (&mut self.slot, &mut self.kid, &mut self.sib);
         slot.clear();
         slot.resize(n, usize::MAX);
         kid.clear();
@@ -384,21 +572,22 @@ pub(crate) fn search<R: CodeReader>(
         sib.clear();
         sib.resize(n, NIL);
         if n > 1 {
-            member.clear();
+            self.member.clear();
             for (i, h) in beam.iter().enumerate() {
-                member.insert(h.cnode, i as u32);
+                self.member.insert(h.cnode, i as u32);
             }
             for (i, h) in beam.iter().enumerate() {
                 if h.cnode == ROOT {
                     continue;
                 }
-                let parent = cells.nodes[h.cnode as usize].parent;
-                if let Some(&j) = member.get(&parent) {
+                let parent = self.cells.nodes[h.cnode as usize].parent;
+                if let Some(&j) = self.member.get(&parent) {
                     sib[i] = kid[j as usize];
                     kid[j as usize] = i as u32;
                 }
             }
         }
+        let next = &mut self.next;
         next.clear();
         let add = |next: &mut Vec<Hyp>, slot: &mut [usize], i: usize, pb: f64, pnb: f64| {
             if slot[i] == usize::MAX {
@@ -435,7 +624,7 @@ pub(crate) fn search<R: CodeReader>(
                             pnb,
                         });
                     } else {
-                        add(&mut next, &mut slot, k as usize, 0.0, pnb);
+                        add(next, slot, k as usize, 0.0, pnb);
                     }
                 }
             }
@@ -447,143 +636,169 @@ pub(crate) fn search<R: CodeReader>(
                 h.pnb * row[h.last as usize & 63]
             };
             if pb + pnb > 0.0 {
-                add(&mut next, &mut slot, hi, pb, pnb);
+                add(next, slot, hi, pb, pnb);
             }
         }
         let max = next.iter().map(Hyp::total).fold(0.0, f64::max);
         if !(max > 0.0 && max.is_finite()) {
-            // Every hypothesis died (only possible with degenerate settings):
-            // report nothing rather than invent a reading.
-            return Vec::new();
+            self.die();
+            return;
         }
-        log_scale += max.ln();
+        self.log_scale += max.ln();
         let inv = 1.0 / max;
         for h in next.iter_mut() {
             h.pb *= inv;
             h.pnb *= inv;
         }
         next.retain(|h| h.total() >= floor);
-        keep_top(&mut next, 2 * params.beam_width);
+        keep_top(next, 2 * beam_width);
         // Only extensions into tree nodes that were not in the beam can
         // change the set of texts; otherwise the beam was merged already.
         let extended = next.iter().any(|h| h.cnode == PENDING);
-        if !extended {
-            keep_top(&mut next, params.beam_width);
-            std::mem::swap(&mut beam, &mut next);
-            continue;
-        }
-        // Put the new extensions among the survivors into the tree, and run
-        // the reader on the tree nodes that have none yet.
-        for h in next.iter_mut() {
-            if h.cnode != PENDING {
-                continue;
-            }
-            h.cnode = cells.child(h.from, h.last);
-            let node = h.cnode as usize;
-            if after.len() <= node {
-                after.resize_with(node + 1, || None);
-            }
-            if after[node].is_none() {
-                let Some((ptext, preader)) = &after[h.from as usize] else {
-                    continue;
-                };
-                let mut r = preader.clone();
-                let piece = r.push(Cell::from_mask(h.last));
-                let tnode = if piece.is_empty() {
-                    *ptext
-                } else {
-                    texts.child(*ptext, piece)
-                };
-                after[node] = Some((tnode, r));
-            }
-        }
-        if merge {
-            by_key.clear();
-            keys.clear();
-            merged.clear();
-            // Few survivors: a linear search of the keys is cheaper than
-            // hashing them (same result: the first of each key collects).
-            let linear = next.len() <= LINEAR_MERGE;
-            for h in &next {
-                let Some((tnode, r)) = &after[h.cnode as usize] else {
-                    continue;
-                };
-                let key = (*tnode, r.state(), h.last);
-                let at = if linear {
-                    keys.iter().position(|k| *k == key)
-                } else {
-                    by_key.get(&key).copied()
-                };
-                match at {
-                    Some(i) => {
-                        let m: &mut Hyp = &mut merged[i];
-                        if h.total() > m.total() {
-                            // Report the dominant cell path.
-                            m.cnode = h.cnode;
-                        }
-                        m.pb += h.pb;
-                        m.pnb += h.pnb;
-                    }
-                    None => {
-                        if linear {
-                            keys.push(key);
-                        } else {
-                            by_key.insert(key, merged.len());
-                        }
-                        merged.push(*h);
-                    }
+        if extended {
+            // Put the new extensions among the survivors into the tree, and
+            // run the reader on the tree nodes that have none yet.
+            let mut next = std::mem::take(&mut self.next);
+            for h in next.iter_mut() {
+                if h.cnode == PENDING {
+                    h.cnode = self.cells.child(h.from, h.last, now);
+                    self.ensure_after(h.cnode);
                 }
             }
-            std::mem::swap(&mut next, &mut merged);
+            if merge {
+                self.merge_equal(&mut next);
+            }
+            self.next = next;
         }
-        keep_top(&mut next, params.beam_width);
-        std::mem::swap(&mut beam, &mut next);
+        keep_top(&mut self.next, beam_width);
+        std::mem::swap(&mut self.beam, &mut self.next);
     }
 
-    let mut found: Vec<(Found, f64)> = Vec::with_capacity(beam.len());
-    for h in &beam {
-        let p = h.total();
-        let Some((tnode, r)) = &after[h.cnode as usize] else {
-            continue;
-        };
-        let mut text: String = texts.path(*tnode).concat();
-        text.push_str(&r.clone().finish());
-        let cells = cells
-            .path(h.cnode)
-            .into_iter()
-            .map(Cell::from_mask)
-            .collect();
-        found.push((
-            Found {
-                cells,
-                text,
-                log_score: p.ln() + log_scale,
-            },
-            p,
-        ));
-    }
-    if by_text {
-        // Different last cells or final states can still read the same:
-        // the text's probability is the sum over them.
-        let mut by_text: HashMap<String, usize> = HashMap::new();
-        let mut merged: Vec<(Found, f64)> = Vec::new();
-        found.sort_by(|a, b| b.1.total_cmp(&a.1));
-        for (f, p) in found {
-            match by_text.get(&f.text) {
-                Some(&i) => merged[i].1 += p,
+    /// Merge the hypotheses of `next` with equal text, reader state and
+    /// last cell (their probabilities add; the dominant cell path is kept).
+    fn merge_equal(&mut self, next: &mut Vec<Hyp>) {
+        self.by_key.clear();
+        self.keys.clear();
+        let merged = &mut self.merged;
+        merged.clear();
+        // Few survivors: a linear search of the keys is cheaper than
+        // hashing them (same result: the first of each key collects).
+        let linear = next.len() <= LINEAR_MERGE;
+        for h in next.iter() {
+            let Some((tnode, r)) = &self.after[h.cnode as usize] else {
+                continue;
+            };
+            let key = (*tnode, r.state(), h.last);
+            let at = if linear {
+                self.keys.iter().position(|k| *k == key)
+            } else {
+                self.by_key.get(&key).copied()
+            };
+            match at {
+                Some(i) => {
+                    let m: &mut Hyp = &mut merged[i];
+                    if h.total() > m.total() {
+                        // Report the dominant cell path.
+                        m.cnode = h.cnode;
+                    }
+                    m.pb += h.pb;
+                    m.pnb += h.pnb;
+                }
                 None => {
-                    by_text.insert(f.text.clone(), merged.len());
-                    merged.push((f, p));
+                    if linear {
+                        self.keys.push(key);
+                    } else {
+                        self.by_key.insert(key, merged.len());
+                    }
+                    merged.push(*h);
                 }
             }
         }
-        for (f, p) in merged.iter_mut() {
-            f.log_score = p.ln() + log_scale;
-        }
-        found = merged;
+        std::mem::swap(next, merged);
     }
-    found.sort_by(|a, b| b.1.total_cmp(&a.1).then_with(|| a.0.cells.cmp(&b.0.cells)));
-    found.into_iter().map(|(f, _)| f).collect()
+
+    fn die(&mut self) {
+        self.dead = true;
+        self.beam.clear();
+    }
+
+    /// The text after cell node `node`, read from the root, with whatever
+    /// its reader still holds back.
+    fn final_text(&self, node: u32) -> Option<String> {
+        let (tnode, r) = self.after[node as usize].as_ref()?;
+        let mut text = self.texts.text(*tnode, ROOT);
+        text.push_str(&r.clone().finish());
+        Some(text)
+    }
+
+    /// Every hypothesis of the beam, most probable first; with `by_text`,
+    /// grouped by text (their probabilities add). Empty if the search died.
+    pub fn results(&self, by_text: bool) -> Vec<Found> {
+        if self.dead {
+            return Vec::new();
+        }
+        let mut found: Vec<(Found, f64)> = Vec::with_capacity(self.beam.len());
+        for h in &self.beam {
+            let p = h.total();
+            let Some(text) = self.final_text(h.cnode) else {
+                continue;
+            };
+            found.push((
+                Found {
+                    cells: self.cells.path(h.cnode, ROOT),
+                    text,
+                    log_score: p.ln() + self.log_scale,
+                },
+                p,
+            ));
+        }
+        if by_text {
+            // Different last cells or final states can still read the same:
+            // the text's probability is the sum over them.
+            let mut by_text: HashMap<String, usize> = HashMap::new();
+            let mut merged: Vec<(Found, f64)> = Vec::new();
+            found.sort_by(|a, b| b.1.total_cmp(&a.1));
+            for (f, p) in found {
+                match by_text.get(&f.text) {
+                    Some(&i) => merged[i].1 += p,
+                    None => {
+                        by_text.insert(f.text.clone(), merged.len());
+                        merged.push((f, p));
+                    }
+                }
+            }
+            for (f, p) in merged.iter_mut() {
+                f.log_score = p.ln() + self.log_scale;
+            }
+            found = merged;
+        }
+        found.sort_by(|a, b| b.1.total_cmp(&a.1).then_with(|| a.0.cells.cmp(&b.0.cells)));
+        found.into_iter().map(|(f, _)| f).collect()
+    }
+}
+
+/// Run the prefix beam search over pruned frames, starting from `reader`.
+/// With `merge`, hypotheses of equal text, state and last cell merge during
+/// the search; with `by_text`, the final hypotheses are grouped by text
+/// (their probabilities add). Results are sorted by decreasing score: every
+/// hypothesis of the final beam. See [`BeamSearch`] for how a frame is
+/// stepped.
+pub(crate) fn search<R: CodeReader>(
+    frames: &Pruned,
+    reader: R,
+    params: &BeamParams,
+    merge: bool,
+    by_text: bool,
+) -> Vec<Found> {
+    let mut s = BeamSearch::new(reader, params.score_margin);
+    for t in 0..frames.n_frames() {
+        s.step(frames, t, t as u64, params.beam_width, merge);
+        if s.dead {
+            // Report nothing rather than invent a reading.
+            return Vec::new();
+        }
+    }
+    s.results(by_text)
 }
 
 /// Greedy best-path decoding: the most probable class of every frame, repeats

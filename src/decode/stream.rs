@@ -69,10 +69,10 @@
 
 use super::align;
 use super::frames::{self, Pruned};
-use super::search::FxMap;
+use super::search::{BeamSearch, CellNode, CellTree, Hyp, ROOT};
 use super::{evidence, BrailleCode, CodeReader, Decoder, Reading};
 use crate::{Cell, Error, Result};
-use ndarray::ArrayView2;
+use ndarray::ArrayView1;
 
 /// Settings of the commit rule (module docs).
 #[derive(Debug, Clone, PartialEq)]
@@ -155,320 +155,57 @@ pub struct StreamWord {
     pub rule: CommitRule,
 }
 
-const NO_CELL: u8 = u8::MAX;
-const ROOT: u32 = 0;
-
-/// A node of the prefix tree of cells.
-#[derive(Debug, Clone, Copy)]
-struct Node {
-    parent: u32,
-    mask: u8,
-    /// Cells from the root.
-    depth: u32,
-    /// Depth of the deepest space cell on the path (this node included); 0
-    /// when there is none.
-    space_depth: u32,
-    /// Stream frame at which the node was created.
-    born: u64,
-}
-
-#[derive(Debug, Clone, Copy)]
-struct Hyp {
-    cnode: u32,
-    last: u8,
-    pb: f64,
-    pnb: f64,
-}
-
-impl Hyp {
-    fn total(&self) -> f64 {
-        self.pb + self.pnb
-    }
-}
-
-fn keep_top(v: &mut Vec<Hyp>, k: usize) {
-    if v.len() > k {
-        v.select_nth_unstable_by(k - 1, |a, b| b.total().total_cmp(&a.total()));
-        v.truncate(k);
-    }
-}
-
-/// The incremental search: the prefix trees since the last commit and the
-/// beam. Node ids are relative to the last commit (its root is the cell
-/// after the committed prefix).
+/// The incremental search: the offline search's state ([`BeamSearch`],
+/// stepped the same way) and where the last commit cut it. Node ids are
+/// those of the trees, whose nodes before the last commit stay until the
+/// next compaction.
 struct Search<R: CodeReader> {
-    cells: Vec<Node>,
-    cindex: FxMap<(u32, u8), u32>,
-    /// Text node and reader after each cell node, once computed.
-    after: Vec<Option<(u32, R)>>,
-    texts: Vec<(u32, Piece)>,
-    tindex: FxMap<(u32, Piece), u32>,
-    beam: Vec<Hyp>,
-    next: Vec<Hyp>,
-    index: FxMap<u32, usize>,
-    by_key: FxMap<(u32, R::State, u8), usize>,
-    merged: Vec<Hyp>,
-    floor: f64,
-    dead: bool,
-    /// The node after the last commit, and its text node: ids below are
-    /// still in the trees until the next compaction.
+    core: BeamSearch<R>,
+    /// The cell node after the last commit, and its text node.
     root: u32,
     root_text: u32,
 }
 
-/// A piece of text one cell produced. Nearly all are a character or two,
-/// kept inline: the search makes one per new tree node, and freeing tens of
-/// thousands of small strings at a compaction would cost a millisecond.
-#[derive(Debug, Clone, PartialEq, Eq, Hash)]
-enum Piece {
-    Inline(u8, [u8; 14]),
-    Heap(Box<str>),
-}
-
-impl Piece {
-    fn new(s: &str) -> Piece {
-        let b = s.as_bytes();
-        if b.len() <= 14 {
-            let mut a = [0u8; 14];
-            a[..b.len()].copy_from_slice(b);
-            Piece::Inline(b.len() as u8, a)
-        } else {
-            Piece::Heap(s.into())
-        }
-    }
-
-    fn as_str(&self) -> &str {
-        match self {
-            // Always the bytes of a whole `&str` (see `new`).
-            Piece::Inline(n, a) => std::str::from_utf8(&a[..*n as usize]).unwrap_or_default(),
-            Piece::Heap(s) => s,
-        }
-    }
-}
-
 /// The trees are rebuilt from the live hypotheses (dropping every node of
 /// committed or abandoned prefixes) when they grow past this many cell
-/// nodes: about 2 MB, reached every few hundred frames.
+/// nodes: about 1.5 MB, reached every few hundred frames.
 const COMPACT_NODES: usize = 1 << 15;
 
 impl<R: CodeReader> Search<R> {
     fn new(reader: R, score_margin: f64) -> Self {
         Search {
-            cells: vec![Node {
-                parent: ROOT,
-                mask: NO_CELL,
-                depth: 0,
-                space_depth: 0,
-                born: 0,
-            }],
-            cindex: FxMap::default(),
-            after: vec![Some((ROOT, reader))],
-            texts: vec![(ROOT, Piece::new(""))],
-            tindex: FxMap::default(),
-            beam: vec![Hyp {
-                cnode: ROOT,
-                last: NO_CELL,
-                pb: 1.0,
-                pnb: 0.0,
-            }],
-            next: Vec::new(),
-            index: FxMap::default(),
-            by_key: FxMap::default(),
-            merged: Vec::new(),
-            floor: (-score_margin).exp(),
-            dead: false,
+            core: BeamSearch::new(reader, score_margin),
             root: ROOT,
             root_text: ROOT,
         }
     }
 
-    fn child(&mut self, parent: u32, mask: u8, now: u64) -> u32 {
-        if let Some(&id) = self.cindex.get(&(parent, mask)) {
-            return id;
-        }
-        let p = self.cells[parent as usize];
-        let depth = p.depth + 1;
-        let id = self.cells.len() as u32;
-        self.cells.push(Node {
-            parent,
-            mask,
-            depth,
-            space_depth: if mask == 0 { depth } else { p.space_depth },
-            born: now,
-        });
-        self.cindex.insert((parent, mask), id);
-        id
-    }
-
-    fn text_child(&mut self, parent: u32, piece: String) -> u32 {
-        let key = (parent, Piece::new(&piece));
-        if let Some(&id) = self.tindex.get(&key) {
-            return id;
-        }
-        let id = self.texts.len() as u32;
-        self.texts.push(key.clone());
-        self.tindex.insert(key, id);
-        id
-    }
-
-    /// Compute the reader after `node` if not yet known (its parent's must be).
-    fn ensure_after(&mut self, node: u32) {
-        let n = node as usize;
-        if self.after.len() <= n {
-            self.after.resize_with(n + 1, || None);
-        }
-        if self.after[n].is_some() {
-            return;
-        }
-        let Node { parent, mask, .. } = self.cells[n];
-        let Some((ptext, preader)) = &self.after[parent as usize] else {
-            return;
-        };
-        let (ptext, mut r) = (*ptext, preader.clone());
-        let piece = r.push(Cell::from_mask(mask));
-        let tnode = if piece.is_empty() {
-            ptext
-        } else {
-            self.text_child(ptext, piece)
-        };
-        self.after[n] = Some((tnode, r));
-    }
-
-    /// One frame: `t` indexes `frames`; `now` is the stream frame. The same
-    /// step as the offline search (`super::search::search`).
-    fn step(&mut self, frames: &Pruned, t: usize, now: u64, beam_width: usize, merge: bool) {
-        if self.dead {
-            return;
-        }
-        let blank = frames.blank[t];
-        let (cands, probs) = frames.candidates(t);
-        if cands.is_empty() {
-            let mut max = 0f64;
-            for h in self.beam.iter_mut() {
-                let total = h.total();
-                h.pnb = if h.last == NO_CELL {
-                    0.0
-                } else {
-                    h.pnb * frames.p(t, h.last)
-                };
-                h.pb = total * blank;
-                max = max.max(h.total());
-            }
-            if !(max > 0.0 && max.is_finite()) {
-                self.dead = true;
-                return;
-            }
-            let inv = 1.0 / max;
-            for h in self.beam.iter_mut() {
-                h.pb *= inv;
-                h.pnb *= inv;
-            }
-            let floor = self.floor;
-            self.beam.retain(|h| h.total() >= floor);
-            return;
-        }
-        let mut next = std::mem::take(&mut self.next);
-        next.clear();
-        self.index.clear();
-        let beam = std::mem::take(&mut self.beam);
-        for h in &beam {
-            let total = h.total();
-            for (&c, &p) in cands.iter().zip(probs) {
-                let pnb = if c == h.last { h.pb * p } else { total * p };
-                if pnb > 0.0 {
-                    let cnode = self.child(h.cnode, c, now);
-                    add(&mut next, &mut self.index, cnode, c, 0.0, pnb);
-                }
-            }
-            let pb = total * blank;
-            let pnb = if h.last == NO_CELL {
-                0.0
-            } else {
-                h.pnb * frames.p(t, h.last)
-            };
-            if pb + pnb > 0.0 {
-                add(&mut next, &mut self.index, h.cnode, h.last, pb, pnb);
-            }
-        }
-        let max = next.iter().map(Hyp::total).fold(0.0, f64::max);
-        if !(max > 0.0 && max.is_finite()) {
-            self.dead = true;
-            self.beam = Vec::new();
-            self.next = next;
-            return;
-        }
-        let inv = 1.0 / max;
-        for h in next.iter_mut() {
-            h.pb *= inv;
-            h.pnb *= inv;
-        }
-        let floor = self.floor;
-        next.retain(|h| h.total() >= floor);
-        keep_top(&mut next, 2 * beam_width);
-        let extended = next
-            .iter()
-            .any(|h| !beam.iter().any(|b| b.cnode == h.cnode));
-        if !extended {
-            keep_top(&mut next, beam_width);
-            self.beam = next;
-            self.next = beam;
-            return;
-        }
-        for h in &next {
-            self.ensure_after(h.cnode);
-        }
-        if merge {
-            self.by_key.clear();
-            let mut merged = std::mem::take(&mut self.merged);
-            merged.clear();
-            for h in &next {
-                let Some((tnode, r)) = &self.after[h.cnode as usize] else {
-                    continue;
-                };
-                match self.by_key.entry((*tnode, r.state(), h.last)) {
-                    std::collections::hash_map::Entry::Occupied(e) => {
-                        let m: &mut Hyp = &mut merged[*e.get()];
-                        if h.total() > m.total() {
-                            m.cnode = h.cnode;
-                        }
-                        m.pb += h.pb;
-                        m.pnb += h.pnb;
-                    }
-                    std::collections::hash_map::Entry::Vacant(e) => {
-                        e.insert(merged.len());
-                        merged.push(*h);
-                    }
-                }
-            }
-            std::mem::swap(&mut next, &mut merged);
-            self.merged = merged;
-        }
-        keep_top(&mut next, beam_width);
-        self.beam = next;
-        self.next = beam;
+    fn node(&self, id: u32) -> &CellNode {
+        &self.core.cells.nodes[id as usize]
     }
 
     /// The most probable hypothesis of the beam.
     fn leader(&self) -> Option<Hyp> {
-        self.beam
+        self.core
+            .beam
             .iter()
             .copied()
             .max_by(|a, b| a.total().total_cmp(&b.total()))
     }
 
     fn ancestor_at(&self, mut node: u32, depth: u32) -> u32 {
-        while self.cells[node as usize].depth > depth {
-            node = self.cells[node as usize].parent;
+        while self.node(node).depth > depth {
+            node = self.node(node).parent;
         }
         node
     }
 
     fn common_ancestor(&self, a: u32, b: u32) -> u32 {
-        let (da, db) = (self.cells[a as usize].depth, self.cells[b as usize].depth);
+        let (da, db) = (self.node(a).depth, self.node(b).depth);
         let (mut a, mut b) = (self.ancestor_at(a, db), self.ancestor_at(b, da));
         while a != b {
-            a = self.cells[a as usize].parent;
-            b = self.cells[b as usize].parent;
+            a = self.node(a).parent;
+            b = self.node(b).parent;
         }
         a
     }
@@ -477,27 +214,27 @@ impl<R: CodeReader> Search<R> {
     /// `margin` (a probability ratio) of the leader descends from.
     fn agreed_space(&self, margin: f64) -> Option<u32> {
         let lead = self.leader()?;
-        let root_depth = self.cells[self.root as usize].depth;
-        if self.cells[lead.cnode as usize].space_depth <= root_depth {
+        let root_depth = self.node(self.root).depth;
+        if self.node(lead.cnode).space_depth <= root_depth {
             return None;
         }
         let floor = lead.total() * margin;
         let mut common = lead.cnode;
-        for h in self.beam.iter().filter(|h| h.total() >= floor) {
+        for h in self.core.beam.iter().filter(|h| h.total() >= floor) {
             common = self.common_ancestor(common, h.cnode);
-            if self.cells[common as usize].space_depth <= root_depth {
+            if self.node(common).space_depth <= root_depth {
                 return None;
             }
         }
-        Some(self.ancestor_at(common, self.cells[common as usize].space_depth))
+        Some(self.ancestor_at(common, self.node(common).space_depth))
     }
 
     /// Rule 2: the first space node on the path to `node`.
     fn first_space(&self, mut node: u32) -> Option<u32> {
         let mut first = None;
-        let root_depth = self.cells[self.root as usize].depth;
+        let root_depth = self.node(self.root).depth;
         while node != self.root {
-            let n = self.cells[node as usize];
+            let n = *self.node(node);
             if n.mask == 0 {
                 first = Some(node);
             }
@@ -510,21 +247,14 @@ impl<R: CodeReader> Search<R> {
     }
 
     /// Cells from the root to `node`.
-    fn path(&self, mut node: u32) -> Vec<Cell> {
-        let mut out = Vec::new();
-        while node != self.root && node != ROOT {
-            let n = self.cells[node as usize];
-            out.push(Cell::from_mask(n.mask));
-            node = n.parent;
-        }
-        out.reverse();
-        out
+    fn path(&self, node: u32) -> Vec<Cell> {
+        self.core.cells.path(node, self.root)
     }
 
     fn descends(&self, mut node: u32, from: u32) -> bool {
-        let d = self.cells[from as usize].depth;
-        while self.cells[node as usize].depth > d {
-            node = self.cells[node as usize].parent;
+        let d = self.node(from).depth;
+        while self.node(node).depth > d {
+            node = self.node(node).parent;
         }
         node == from
     }
@@ -534,7 +264,7 @@ impl<R: CodeReader> Search<R> {
     /// trees from the survivors when they have grown large.
     fn rebase(&mut self, node: u32, only_leader: bool) {
         let lead = self.leader().map(|h| h.cnode);
-        let mut beam = std::mem::take(&mut self.beam);
+        let mut beam = std::mem::take(&mut self.core.beam);
         beam.retain(|h| {
             if only_leader {
                 Some(h.cnode) == lead
@@ -542,17 +272,17 @@ impl<R: CodeReader> Search<R> {
                 self.descends(h.cnode, node)
             }
         });
-        self.beam = beam;
-        let Some(Some((tnode, _))) = self.after.get(node as usize) else {
+        self.core.beam = beam;
+        let Some(Some((tnode, _))) = self.core.after.get(node as usize) else {
             // Cannot happen (every beam node's reader is computed); end the
             // search rather than read on from a wrong state.
-            self.dead = true;
-            self.beam.clear();
+            self.core.dead = true;
+            self.core.beam.clear();
             return;
         };
         self.root_text = *tnode;
         self.root = node;
-        if self.cells.len() > COMPACT_NODES {
+        if self.core.cells.nodes.len() > COMPACT_NODES {
             self.compact();
         }
     }
@@ -560,56 +290,43 @@ impl<R: CodeReader> Search<R> {
     /// Rebuild the trees from the root and the live hypotheses only.
     fn compact(&mut self) {
         let node = self.root;
-        let Some(Some((_, reader))) = self.after.get(node as usize).cloned() else {
-            self.dead = true;
-            self.beam.clear();
+        let Some(Some((_, reader))) = self.core.after.get(node as usize).cloned() else {
+            self.core.dead = true;
+            self.core.beam.clear();
             return;
         };
-        let old = std::mem::take(&mut self.cells);
-        let base = old[node as usize];
-        self.cells = vec![Node {
-            parent: ROOT,
-            mask: NO_CELL,
-            depth: 0,
-            space_depth: 0,
-            born: base.born,
-        }];
-        self.cindex.clear();
-        self.after = vec![Some((ROOT, reader))];
-        self.texts.clear();
-        self.texts.push((ROOT, Piece::new("")));
-        self.tindex.clear();
+        let old = std::mem::replace(&mut self.core.cells, CellTree { nodes: Vec::new() });
+        self.core.clear_trees(reader, old.nodes[node as usize].born);
         self.root = ROOT;
         self.root_text = ROOT;
-        let kept = std::mem::take(&mut self.beam);
-        let mut beam = Vec::with_capacity(kept.len());
-        for mut h in kept {
-            let mut path = Vec::new();
+        let mut beam = std::mem::take(&mut self.core.beam);
+        let mut path = Vec::new();
+        for h in beam.iter_mut() {
+            path.clear();
             let mut n = h.cnode;
             while n != node {
                 path.push(n);
-                n = old[n as usize].parent;
+                n = old.nodes[n as usize].parent;
             }
             let mut cur = ROOT;
             for &o in path.iter().rev() {
-                let on = old[o as usize];
-                cur = self.child(cur, on.mask, on.born);
-                self.ensure_after(cur);
+                let on = old.nodes[o as usize];
+                cur = self.core.cells.child(cur, on.mask, on.born);
+                self.core.ensure_after(cur);
             }
             h.cnode = cur;
-            beam.push(h);
         }
-        self.beam = beam;
+        self.core.beam = beam;
     }
 
     /// The final best hypothesis's cells, grouped by text as offline
     /// (`by_text`): the text's probability is the sum over its hypotheses.
     fn best_final(&self) -> Vec<Cell> {
         let mut groups: Vec<(String, f64, u32)> = Vec::new();
-        let mut order: Vec<Hyp> = self.beam.clone();
+        let mut order: Vec<Hyp> = self.core.beam.clone();
         order.sort_by(|a, b| b.total().total_cmp(&a.total()));
         for h in &order {
-            let Some((tnode, r)) = &self.after[h.cnode as usize] else {
+            let Some((tnode, r)) = &self.core.after[h.cnode as usize] else {
                 continue;
             };
             let mut text = self.text_of(*tnode);
@@ -633,63 +350,22 @@ impl<R: CodeReader> Search<R> {
         best.map(|b| b.1).unwrap_or_default()
     }
 
-    fn text_of(&self, mut tnode: u32) -> String {
-        let mut parts = Vec::new();
-        while tnode != self.root_text && tnode != ROOT {
-            let (p, s) = &self.texts[tnode as usize];
-            parts.push(s.as_str());
-            tnode = *p;
-        }
-        parts.reverse();
-        parts.concat()
+    /// The text from the root's text node to `tnode`.
+    fn text_of(&self, tnode: u32) -> String {
+        self.core.texts.text(tnode, self.root_text)
     }
 }
 
-fn add(
-    next: &mut Vec<Hyp>,
-    index: &mut FxMap<u32, usize>,
-    cnode: u32,
-    last: u8,
-    pb: f64,
-    pnb: f64,
-) {
-    match index.get(&cnode) {
-        Some(&i) => {
-            next[i].pb += pb;
-            next[i].pnb += pnb;
-        }
-        None => {
-            index.insert(cnode, next.len());
-            next.push(Hyp {
-                cnode,
-                last,
-                pb,
-                pnb,
-            });
-        }
-    }
-}
-
-/// Append one checked and pruned frame to `window`.
+/// Append one checked and pruned frame to `window` (stream frame `t`).
 fn push_row(window: &mut Pruned, row: &[f32], p: &super::BeamParams, t: u64) -> Result<()> {
-    let view = ArrayView2::from_shape((1, row.len()), row)
-        .map_err(|e| Error::config("stream", format!("a frame of {} values: {e}", row.len())))?;
-    let one = frames::prune(&view, p.min_cell_prob, p.max_cells_per_frame, p.blank_skip).map_err(
-        |e| match e {
-            Error::Input { message, .. } => Error::input(
-                crate::Location::file("<decoder input>").line(t as usize + 1),
-                message,
-            ),
-            other => other,
-        },
-    )?;
-    let base = window.class.len();
-    window.blank.extend_from_slice(&one.blank);
-    window.all.extend_from_slice(&one.all);
-    window.class.extend_from_slice(&one.class);
-    window.prob.extend_from_slice(&one.prob);
-    window.start.push(base + one.class.len());
-    Ok(())
+    frames::push_frame(
+        window,
+        t as usize,
+        &ArrayView1::from(row),
+        p.min_cell_prob,
+        p.max_cells_per_frame,
+        p.blank_skip,
+    )
 }
 
 /// Streaming word decoder over log-probability frames: feed it the
@@ -840,7 +516,7 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
     pub fn step(&mut self, log_probs: &[f32]) -> Result<()> {
         push_row(&mut self.window, log_probs, &self.beam, self.now)?;
         let t = self.window.blank.len() - 1;
-        self.search.step(
+        self.search.core.step(
             &self.window,
             t,
             self.now,
@@ -870,7 +546,7 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
                 // Right after a commit the leader's next space has been the
                 // leader's since at least its birth (and since the committed
                 // one was stable).
-                _ if just_committed => self.search.cells[n as usize].born.max(self.last_since),
+                _ if just_committed => self.search.node(n).born.max(self.last_since),
                 _ => self.now,
             };
             self.candidate = Some((n, since));
@@ -887,7 +563,7 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
                 self.commit(lead.cnode, true, CommitRule::Bound);
             }
         }
-        if self.search.cells.len() > 4 * COMPACT_NODES {
+        if self.search.core.cells.nodes.len() > 4 * COMPACT_NODES {
             // A long stretch without commits: drop abandoned prefixes.
             self.search.compact();
             self.candidate = None;
@@ -906,7 +582,7 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
         let Some(lead) = self.search.leader() else {
             return String::new();
         };
-        match &self.search.after[lead.cnode as usize] {
+        match &self.search.core.after[lead.cnode as usize] {
             Some((tnode, _)) => self.search.text_of(*tnode),
             None => String::new(),
         }
@@ -973,7 +649,7 @@ impl<'d, 'a, C: BrailleCode> WordStream<'d, 'a, C> {
             job
         } else {
             // The space's frames start where its tree node appeared.
-            let born = self.search.cells[node as usize].born;
+            let born = self.search.node(node).born;
             let cut =
                 (born.saturating_sub(self.window_start) as usize).min(self.window.blank.len());
             let frames = split_front(&mut self.window, cut);
