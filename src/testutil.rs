@@ -68,17 +68,25 @@ pub(crate) fn test_dir(name: &str) -> TestDir {
 mod tests {
     use super::*;
 
+    /// With [`KEEP_VAR`] set the folder must outlive its guard (and is
+    /// then removed here); otherwise it must be gone.
+    fn check_after_drop(path: &Path) {
+        if keep() {
+            assert!(path.is_dir(), "{} was not kept", path.display());
+            std::fs::remove_dir_all(path).unwrap();
+        } else {
+            assert!(!path.exists(), "{} is left behind", path.display());
+        }
+    }
+
     #[test]
     fn the_folder_is_removed_on_drop_and_on_panic() {
-        if keep() {
-            return; // folders are kept on purpose in this run
-        }
         let d = test_dir("testutil");
         let path = d.path().to_path_buf();
         std::fs::write(d.join("f.txt"), "x").unwrap();
         assert!(path.is_dir());
         drop(d);
-        assert!(!path.exists(), "{} is left", path.display());
+        check_after_drop(&path);
 
         let mut seen = None;
         let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
@@ -88,8 +96,7 @@ mod tests {
             panic!("a failing test");
         }));
         assert!(r.is_err());
-        let path = seen.expect("the closure ran");
-        assert!(!path.exists(), "{} is left after a panic", path.display());
+        check_after_drop(&seen.expect("the closure ran"));
     }
 
     #[test]
@@ -98,5 +105,10 @@ mod tests {
         assert_ne!(a.path(), b.path());
         let name = a.path().file_name().unwrap().to_str().unwrap();
         assert!(name.starts_with("tactread-testutil-"), "{name}");
+        let paths = [a.path().to_path_buf(), b.path().to_path_buf()];
+        drop((a, b));
+        for p in &paths {
+            check_after_drop(p);
+        }
     }
 }
