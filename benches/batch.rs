@@ -86,10 +86,13 @@ fn char_accuracy(pairs: &[(String, &str)]) -> f64 {
 fn main() {
     let quick = std::env::args().any(|a| a == "--quick");
     let (n, rounds) = if quick { (8, 1) } else { (40, 5) };
-    let dir = std::env::temp_dir().join(format!("tactread-bench-batch-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("temp dir");
-    let set = write_set(&dir, n);
+    // Removed when `tmp` drops at the end of main, also if a check panics.
+    let tmp = tempfile::Builder::new()
+        .prefix("tactread-bench-batch-")
+        .tempdir()
+        .expect("temp dir");
+    let dir = tmp.path();
+    let set = write_set(dir, n);
     let paths: Vec<PathBuf> = set.iter().map(|(p, _)| p.clone()).collect();
 
     let model = Model::from_json(DEFAULT_MODEL, Path::new("models/default.json")).expect("model");
@@ -166,5 +169,4 @@ fn main() {
         "loading alone (manifest + CSV frames, 1 thread): {:.2} ms/recording",
         median(load)
     );
-    let _ = std::fs::remove_dir_all(&dir);
 }

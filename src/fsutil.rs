@@ -179,8 +179,8 @@ fn inode(_: &Path) -> Option<(u64, u64)> {
 ///
 /// ```
 /// # use tactread::fsutil::OutputGuard;
-/// # let dir = std::env::temp_dir().join(format!("tactread-guard-doc-{}", std::process::id()));
-/// # std::fs::create_dir_all(&dir).unwrap();
+/// # let tmp = tempfile::Builder::new().prefix("tactread-guard-doc-").tempdir().unwrap();
+/// # let dir = tmp.path();
 /// let words = dir.join("words.txt");
 /// std::fs::write(&words, "tea\n").unwrap();
 /// let mut guard = OutputGuard::new(true);
@@ -188,7 +188,6 @@ fn inode(_: &Path) -> Option<(u64, u64)> {
 /// // Even with --force, the word list is not written over.
 /// assert!(guard.file(&dir.join("./words.txt"), "--out").is_err());
 /// assert!(guard.file(&dir.join("words.lex"), "--out").is_ok());
-/// # std::fs::remove_dir_all(&dir).unwrap();
 /// ```
 #[derive(Debug, Default)]
 pub struct OutputGuard {
@@ -300,12 +299,8 @@ impl OutputGuard {
 mod tests {
     use super::*;
 
-    fn scratch(name: &str) -> PathBuf {
-        let dir =
-            std::env::temp_dir().join(format!("tactread-fsutil-{name}-{}", std::process::id()));
-        let _ = std::fs::remove_dir_all(&dir);
-        std::fs::create_dir_all(&dir).unwrap();
-        dir
+    fn scratch(name: &str) -> crate::testutil::TestDir {
+        crate::testutil::test_dir(&format!("fsutil-{name}"))
     }
 
     #[test]
@@ -326,7 +321,6 @@ mod tests {
         .unwrap_err();
         assert!(matches!(e, Error::Io { .. }), "{e}");
         assert_eq!(std::fs::read_dir(&dir).unwrap().count(), 1);
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 
     #[test]
@@ -343,7 +337,6 @@ mod tests {
         assert!(!stale.exists());
         assert!(ours.exists(), "our own temporary is not touched");
         assert!(other.exists(), "another target's temporary is not touched");
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 
     #[test]
@@ -380,6 +373,5 @@ mod tests {
         assert!(g.file(&dir.join("new.txt"), "--out").is_ok());
         let e = g.file(&dir.join("sub"), "--out").unwrap_err();
         assert!(e.to_string().contains("is a folder"), "{e}");
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 }

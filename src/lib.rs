@@ -53,6 +53,8 @@ pub mod recording;
 pub mod report;
 pub mod simulate;
 pub mod stream;
+#[cfg(test)]
+mod testutil;
 mod text_file;
 pub mod train;
 

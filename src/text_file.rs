@@ -42,8 +42,7 @@ mod tests {
         assert_eq!(line_and_byte(b"\xff", 0), (1, 1));
         assert_eq!(line_and_byte(b"ab\ncd\xffe", 5), (2, 3));
         assert_eq!(line_and_byte(b"ab\n\n\xff", 4), (3, 1));
-        let dir = std::env::temp_dir().join(format!("tactread-text-file-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).unwrap();
+        let dir = crate::testutil::test_dir("text-file");
         let path = dir.join("w.txt");
         std::fs::write(&path, b"tea\nj\xffr\n").unwrap();
         let e = read_utf8(&path, "save it as UTF-8").unwrap_err();
@@ -55,6 +54,5 @@ mod tests {
         );
         std::fs::write(&path, "thé\n").unwrap();
         assert_eq!(read_utf8(&path, "").unwrap(), "thé\n");
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 }

@@ -3,6 +3,9 @@
 //! `--list` files as inputs, `--jobs`, `--format jsonl`, input order kept,
 //! and a bad recording failing alone (error line, message, exit code).
 
+mod common;
+
+use common::cli::{test_dir, TestDir};
 use std::path::{Path, PathBuf};
 use std::process::Output;
 use tactread::recording::FramesKind;
@@ -25,9 +28,8 @@ fn stderr(o: &Output) -> String {
 /// sensor at 100 Hz like the default model's training data.
 const LINES: [&str; 4] = ["jam jar", "oats", "rice tin", "tea box"];
 
-fn fresh_dir(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("tactread-batch-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
+fn fresh_dir(name: &str) -> TestDir {
+    let dir = test_dir(&format!("batch-{name}"));
     std::fs::create_dir_all(dir.join("scans")).unwrap();
     dir
 }
@@ -136,7 +138,6 @@ fn folder_list_and_files_read_in_order_with_the_default_model() {
             ("scans/01.json", single[1].as_str()),
         ]
     );
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -185,7 +186,6 @@ fn a_bad_recording_fails_alone() {
     let o = tactread(&dir, &["decode", "default", "empty"]);
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("no *.json"), "{}", stderr(&o));
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -225,5 +225,4 @@ fn each_recording_is_read_in_its_own_language() {
     );
     assert!(o.status.success(), "{}", stderr(&o));
     assert!(json_lines(&o).iter().all(|v| v["lang"] == "en"));
-    std::fs::remove_dir_all(&dir).unwrap();
 }

@@ -90,8 +90,7 @@ fn cells_round_trips_all_four_languages() {
 
 #[test]
 fn cells_lang_accepts_a_table_file() {
-    let dir = std::env::temp_dir().join(format!("tactread-cli-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("cli");
     let path = dir.join("mini.txt");
     std::fs::write(
         &path,
@@ -112,7 +111,6 @@ fn cells_lang_accepts_a_table_file() {
         err.contains("mini.txt line 3") && err.contains("dots"),
         "{err}"
     );
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]

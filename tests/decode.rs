@@ -468,8 +468,7 @@ fn tuning_finds_weights_at_least_as_good_as_no_lexicon() {
 
 #[test]
 fn lexicon_file_round_trip_and_version_check() {
-    let dir = std::env::temp_dir().join(format!("tactread-lex-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("lex");
     let path = dir.join("small.lex");
     let entries = parse_word_list(
         "Straße\t7\nhaus\t3\nhaus\t1\n",
@@ -492,7 +491,6 @@ fn lexicon_file_round_trip_and_version_check() {
     assert!(matches!(err, Error::Format { .. }), "{err}");
     assert_eq!(err.exit_code(), 3);
     assert!(err.to_string().contains("version 99"), "{err}");
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -604,8 +602,7 @@ use common::cli::tactread;
 
 #[test]
 fn cli_lexicon_build_info_and_errors() {
-    let dir = std::env::temp_dir().join(format!("tactread-cli-lex-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("cli-lex");
     let words = dir.join("words.txt");
     let out = dir.join("w.lex");
     std::fs::write(&words, "harbour\t12\nharbor\t30\nlighthouse\n").unwrap();
@@ -634,7 +631,6 @@ fn cli_lexicon_build_info_and_errors() {
     // Not a lexicon file (exit code 3).
     let r = tactread(&["lexicon", "info", w]);
     assert_eq!(r.status.code(), Some(3));
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 /// A small untrained model for `recording`, saved to `path`: its readings
@@ -662,8 +658,7 @@ fn untrained_model(recording: &std::path::Path, path: &std::path::Path) {
 
 #[test]
 fn cli_decode_text_and_json() {
-    let dir = std::env::temp_dir().join(format!("tactread-cli-decode-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("cli-decode");
     let rec = dir.join("rec.json");
     let model = dir.join("model.json");
     let r = tactread(&["simulate", "the cat sat", "--out", rec.to_str().unwrap()]);
@@ -756,5 +751,4 @@ fn cli_decode_text_and_json() {
     let r = tactread(&["decode", m, p, "--weights", w]);
     assert_eq!(r.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&r.stderr).contains("weights.json"));
-    std::fs::remove_dir_all(&dir).unwrap();
 }

@@ -41,5 +41,4 @@ fn demo_prints_table_and_writes_report() {
     let again = tactread(&["demo", "--limit", "1", "--out", s(&out)]);
     assert!(!again.status.success());
     assert!(String::from_utf8_lossy(&again.stderr).contains("--force"));
-    let _ = std::fs::remove_dir_all(&out);
 }

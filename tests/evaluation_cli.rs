@@ -92,7 +92,6 @@ fn compare_prints_paired_differences_and_refuses_other_sets() {
     let out = tactread(&["compare", s(&dir.join("model.json")), s(&a)]);
     assert_eq!(out.status.code(), Some(3));
     assert!(String::from_utf8_lossy(&out.stderr).contains("expected tactread-metrics version 1"));
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -146,7 +145,6 @@ fn show_draws_a_recording_view() {
     ]);
     assert_ne!(out.status.code(), Some(0));
     assert!(String::from_utf8_lossy(&out.stderr).contains("missing.json"));
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 /// `tactread evaluate` on a tiny simulated dataset with a one-epoch model
@@ -278,5 +276,4 @@ fn evaluate_reads_each_recording_in_its_own_language() {
     assert!(err.contains("in 4 languages: de, en, es, fr"), "{err}");
     let eval = tactread::metrics::Evaluation::load(&json).unwrap();
     assert_eq!(eval.recordings.len(), 4);
-    std::fs::remove_dir_all(&dir).unwrap();
 }

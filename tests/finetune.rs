@@ -11,6 +11,8 @@
 //! instead of 6.2 mm), same sensor and rate: the signal is weaker and the
 //! cells come closer together, so the untouched model misreads many cells.
 
+mod common;
+
 use std::ops::ControlFlow;
 use std::path::Path;
 use std::time::Instant;
@@ -76,8 +78,7 @@ fn fine_tuning_beats_the_untouched_model_and_training_from_scratch() {
     let test = target_set(&sim, &lines, SIZES[0] + SIZES[1], SIZES[2]);
     let table = CodeTable::builtin("en").unwrap();
 
-    let dir = std::env::temp_dir().join(format!("tactread-finetune-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("finetune");
     let g = pre.network.config();
     let base = TrainConfig {
         hidden: g.hidden,
@@ -136,7 +137,6 @@ fn fine_tuning_beats_the_untouched_model_and_training_from_scratch() {
     .unwrap();
     assert!(scratch.model.training.fine_tuned_from.is_none());
     let scratch_v = train::evaluate(&scratch.model, &test, &table, 2).unwrap();
-    std::fs::remove_dir_all(&dir).unwrap();
 
     eprintln!(
         "character accuracy on {} held-out low-dots recordings (greedy): untouched {:.3}, \
@@ -170,9 +170,7 @@ fn tactread(dir: &Path, args: &[&str]) -> std::process::Output {
 
 #[test]
 fn cli_train_init_fine_tunes_and_refuses_what_cannot_agree() {
-    let dir = std::env::temp_dir().join(format!("tactread-finetune-cli-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("finetune-cli");
     let sim = |extra: &[&str], out: &str| {
         let mut args = vec![
             "simulate", "dataset", "--lines", "10", "--lang", "en", "--rate", "100", "--seed", "3",
@@ -251,5 +249,4 @@ fn cli_train_init_fine_tunes_and_refuses_what_cannot_agree() {
     assert_eq!(o.status.code(), Some(3), "{}", err(&o));
     assert!(err(&o).contains("taxel count of pad/"), "{}", err(&o));
     assert!(!dir.join("x.json").exists());
-    std::fs::remove_dir_all(&dir).unwrap();
 }

@@ -15,6 +15,8 @@
 //!   implementation has (the interval holds the point estimate and narrows
 //!   as the data grow).
 
+mod common;
+
 use approx::assert_abs_diff_eq;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -363,8 +365,7 @@ fn paired_comparison_sees_a_real_improvement_and_refuses_other_sets() {
 
 #[test]
 fn metrics_file_round_trips_and_rejects_other_formats() {
-    let dir = std::env::temp_dir().join(format!("tactread-metrics-test-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("metrics-test");
     let recs = noisy_set(5, 9);
     let e = evaluate("round trip", &recs, &fast()).unwrap();
     let p = dir.join("m.json");
@@ -389,7 +390,6 @@ fn metrics_file_round_trips_and_rejects_other_formats() {
         matches!(&err, Error::Input { at, .. } if at.line == Some(4)),
         "{err}"
     );
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]

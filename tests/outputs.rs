@@ -130,7 +130,6 @@ fn lexicon_build() {
     refused(&o, &words, INPUT);
     assert_eq!(read(&words), before);
     no_temporaries(&d);
-    std::fs::remove_dir_all(&d).unwrap();
 }
 
 #[test]
@@ -173,7 +172,6 @@ fn lexicon_tune() {
     refused(&o, &frames, INPUT);
     assert_eq!(read(&frames), before);
     no_temporaries(&d);
-    std::fs::remove_dir_all(&d).unwrap();
 }
 
 #[test]
@@ -210,7 +208,6 @@ fn simulate_one_recording() {
     assert_eq!(read(&text), b"tea\n");
     assert!(!d.join("line.json").exists());
     no_temporaries(&d);
-    std::fs::remove_dir_all(&d).unwrap();
 }
 
 #[test]
@@ -253,7 +250,6 @@ fn simulate_dataset() {
     refused(&o, &lines, INPUT);
     assert_eq!(read(&lines), b"tea\nferry\n");
     no_temporaries(&d);
-    std::fs::remove_dir_all(&d).unwrap();
 }
 
 #[test]
@@ -300,7 +296,6 @@ fn train() {
         assert_eq!(&read(input), &before);
     }
     no_temporaries(&d);
-    std::fs::remove_dir_all(&d).unwrap();
 }
 
 #[test]
@@ -340,7 +335,6 @@ fn evaluate() {
     let o = run(&["--json", s(&report), "--report", s(&report), "--force"]);
     refused(&o, &report, "--json writes the same file");
     no_temporaries(&d);
-    std::fs::remove_dir_all(&d).unwrap();
 }
 
 #[test]
@@ -373,7 +367,6 @@ fn show() {
     refused(&o, &model, INPUT);
     assert_eq!(read(&model), before);
     no_temporaries(&d);
-    std::fs::remove_dir_all(&d).unwrap();
 }
 
 #[test]
@@ -387,5 +380,4 @@ fn demo() {
     refused(&o, &report, EXISTS);
     assert_eq!(read(&report), b"x");
     no_temporaries(&d);
-    std::fs::remove_dir_all(&d).unwrap();
 }

@@ -96,15 +96,13 @@ fn report_page_is_self_contained_with_every_plot_and_the_caution() {
 
 #[test]
 fn report_is_written_atomically() {
-    let dir = std::env::temp_dir().join(format!("tactread-report-test-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("report-test");
     let e = demo_evaluation();
     let p = dir.join("report.html");
     write_html_report(&p, &e, &[]).unwrap();
     let page = std::fs::read_to_string(&p).unwrap();
     assert!(page.ends_with("</html>\n"));
     assert_eq!(std::fs::read_dir(&dir).unwrap().count(), 1);
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 /// Writes `$TACTREAD_DEMO_REPORT` (default target/report-demo/report.html)

@@ -170,5 +170,4 @@ fn killed_mid_epoch_resumes_from_its_checkpoint_and_matches_an_uninterrupted_run
         net(&full) == net(&killed),
         "the resumed run's parameters differ from the uninterrupted run's"
     );
-    std::fs::remove_dir_all(&dir).unwrap();
 }

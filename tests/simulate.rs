@@ -358,7 +358,6 @@ fn recording_saves_and_loads_back() {
         assert_eq!(back.manifest.text, rec.manifest.text);
         assert_eq!(back.manifest.tags, rec.manifest.tags);
     }
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 // ------------------------------------------------------------------ CLI
@@ -393,7 +392,6 @@ fn cli_same_seed_same_bytes() {
         .unwrap()
         .replace("b.csv", "x.csv");
     assert_eq!(a, b);
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -448,7 +446,6 @@ fn cli_errors_name_the_problem() {
     let mut forced = args.to_vec();
     forced.push("--force");
     assert!(tactread_in(&dir, &forced).status.success());
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -493,7 +490,6 @@ fn cli_sensor_by_name_anywhere_and_by_path() {
     let rec = Recording::load(&dir.join("s.json")).unwrap();
     assert_eq!(rec.frames.ncols(), 256);
     assert!(rec.position_mm.is_none());
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// A simulated dataset reads back with Dataset::open and Recording::load,
@@ -575,7 +571,6 @@ fn cli_dataset_reads_back_and_is_parallel_safe() {
         Dataset::open(&dir.join("serial")).unwrap().entries().len(),
         20
     );
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// demo-data/ is exactly what the command in demo-data/README.md writes.
@@ -639,7 +634,6 @@ fn demo_data_matches_its_command() {
             }
         }
     }
-    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// The word "dataset" can be embossed as the help says.
@@ -655,5 +649,4 @@ fn cli_text_dataset_after_double_dash() {
     assert!(o.status.success(), "{}", stderr(&o));
     let rec = Recording::load(&dir.join("x.json")).unwrap();
     assert_eq!(rec.manifest.text.as_deref(), Some("dataset"));
-    let _ = std::fs::remove_dir_all(&dir);
 }

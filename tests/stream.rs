@@ -3,6 +3,8 @@
 //! text against offline `decode` on the demo recordings, JSON lines, and
 //! the errors (bidirectional model, a bad row mid-stream, two recordings).
 
+mod common;
+
 use std::io::{BufRead, BufReader, Write};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
@@ -229,8 +231,7 @@ fn bidirectional_models_and_two_recordings_are_refused() {
         taxels: rec.frames.ncols(),
         name: None,
     };
-    let dir = std::env::temp_dir().join(format!("tactread-stream-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = common::cli::test_dir("stream");
     let path = dir.join("bi.json");
     Model::new(
         Network::new(config, 1).unwrap(),
@@ -261,7 +262,6 @@ fn bidirectional_models_and_two_recordings_are_refused() {
     let r = tactread(&["decode", &model(), a, b, "--stream"]);
     assert!(!r.status.success());
     assert!(String::from_utf8_lossy(&r.stderr).contains("one recording"));
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 /// A recording file is streamed in the language its manifest names, as

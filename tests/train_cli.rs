@@ -35,7 +35,6 @@ fn trains_a_small_model_and_reports_test_figures() {
     let again = tactread(&args);
     assert_eq!(again.status.code(), Some(4));
     assert!(String::from_utf8_lossy(&again.stderr).contains("--force"));
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -48,7 +47,6 @@ fn bad_options_and_missing_data_are_clear_errors() {
     let out = tactread(&["train", "--data", s(&dir.join("nowhere")), "--out", s(&m)]);
     assert_ne!(out.status.code(), Some(0));
     assert!(String::from_utf8_lossy(&out.stderr).contains("nowhere"));
-    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
@@ -89,5 +87,4 @@ fn a_dataset_in_several_languages_trains_one_model() {
         .collect();
     assert_eq!(listed, langs);
     assert!(langs.contains(&v["lang"].as_str().unwrap().to_string()));
-    std::fs::remove_dir_all(&dir).unwrap();
 }

@@ -1386,8 +1386,7 @@ mod tests {
 
     #[test]
     fn not_utf8_names_the_line() {
-        let dir = std::env::temp_dir().join(format!("tactread-table-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).unwrap();
+        let dir = crate::testutil::test_dir("table");
         let path = dir.join("latin1.txt");
         std::fs::write(
             &path,
@@ -1401,6 +1400,5 @@ mod tests {
             }
             other => panic!("unexpected {other:?}"),
         }
-        std::fs::remove_dir_all(&dir).ok();
     }
 }

@@ -295,14 +295,12 @@ mod tests {
 
     #[test]
     fn round_trips_exactly_through_a_file() {
-        let dir = std::env::temp_dir().join(format!("tactread-model-test-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).unwrap();
+        let dir = crate::testutil::test_dir("model-test");
         let path = dir.join("m.json");
         let m = model();
         m.save(&path).unwrap();
         let back = Model::load(&path).unwrap();
         assert_eq!(back, m);
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 
     #[test]

@@ -291,9 +291,8 @@ impl Dataset {
 mod tests {
     use super::*;
 
-    fn temp_dir(name: &str) -> PathBuf {
-        let d = std::env::temp_dir().join(format!("tactread-ds-{name}-{}", std::process::id()));
-        let _ = std::fs::remove_dir_all(&d);
+    fn temp_dir(name: &str) -> crate::testutil::TestDir {
+        let d = crate::testutil::test_dir(&format!("ds-{name}"));
         std::fs::create_dir_all(d.join("train")).unwrap();
         d
     }
@@ -321,7 +320,6 @@ mod tests {
         assert_eq!(ds.count(Split::Train), 1);
         assert_eq!(ds.count(Split::Validation), 0);
         assert_eq!(ds.split(Split::Test).next().unwrap().manifest, "b.json");
-        let _ = std::fs::remove_dir_all(&d);
     }
 
     #[test]
@@ -353,6 +351,5 @@ mod tests {
 
         write(r#"{"format": "tactread-recording", "version": 1}"#);
         assert!(msg(&d).contains("not a tactread dataset index"));
-        let _ = std::fs::remove_dir_all(&d);
     }
 }

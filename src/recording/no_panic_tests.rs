@@ -115,9 +115,7 @@ fn damaged_npy_headers_never_panic() {
 
 #[test]
 fn damaged_npy_files_never_panic() {
-    let dir = std::env::temp_dir().join(format!("tactread-no-panic-npy-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).unwrap();
+    let dir = crate::testutil::test_dir("no-panic-npy");
     std::fs::write(
         dir.join("m.json"),
         NPY_MANIFEST.replace("tea-jar-npy.npy", "m.npy"),
@@ -131,6 +129,5 @@ fn damaged_npy_files_never_panic() {
         loaded += usize::from(Recording::load(&dir.join("m.json")).is_ok());
     }
     // Flipping bits inside the float data often leaves a valid file.
-    let _ = std::fs::remove_dir_all(&dir);
     assert!(loaded < n, "some damage is caught: {loaded} of {n} loaded");
 }

@@ -321,8 +321,7 @@ mod tests {
 
     #[test]
     fn an_unfinished_dataset_is_told_from_a_users_folder() {
-        let dir = std::env::temp_dir().join(format!("tactread-unfinished-{}", std::process::id()));
-        let _ = std::fs::remove_dir_all(&dir);
+        let dir = crate::testutil::test_dir("unfinished");
         std::fs::create_dir_all(dir.join("train")).unwrap();
         for name in ["00000-en.json", "00000-en.csv", ".00001-en.csv.tmp-77-0"] {
             std::fs::write(dir.join("train").join(name), "x").unwrap();
@@ -339,7 +338,6 @@ mod tests {
             !only_dataset_parts(&dir),
             "a file of the user's beside the splits"
         );
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 
     #[test]

@@ -896,8 +896,7 @@ mod tests {
     #[test]
     fn trains_saves_and_resumes_exactly() {
         let (train_set, val, table) = toy_data();
-        let dir = std::env::temp_dir().join(format!("tactread-train-test-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).unwrap();
+        let dir = crate::testutil::test_dir("train-test");
         let a = dir.join("a.json");
         let b = dir.join("b.json");
         let mut epochs_seen = 0;
@@ -969,7 +968,6 @@ mod tests {
         other.hidden = 10;
         let err = train(&other, &train_set, &val, &table, "toy", &b, true, go).unwrap_err();
         assert!(matches!(err, Error::Mismatch { .. }), "{err}");
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 
     /// A run killed after writing a better model but before its checkpoint
@@ -980,9 +978,7 @@ mod tests {
     #[test]
     fn model_ahead_of_its_checkpoint_is_run_again() {
         let (train_set, val, table) = toy_data();
-        let dir = std::env::temp_dir().join(format!("tactread-train-ahead-{}", std::process::id()));
-        let _ = std::fs::remove_dir_all(&dir);
-        std::fs::create_dir_all(&dir).unwrap();
+        let dir = crate::testutil::test_dir("train-ahead");
         let (a, b) = (dir.join("a.json"), dir.join("b.json"));
         let go = |_: Event| ControlFlow::Continue(());
         let stop_at = |n: usize| {
@@ -1032,14 +1028,12 @@ mod tests {
         let (ma, mb) = (Model::load(&a).unwrap(), Model::load(&b).unwrap());
         assert_eq!(ma.training.best_epoch, mb.training.best_epoch);
         assert!(ma.network == mb.network, "resumed model differs");
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 
     #[test]
     fn fine_tuning_starts_from_the_model_and_checks_what_must_agree() {
         let (train_set, val, table) = toy_data();
-        let dir = std::env::temp_dir().join(format!("tactread-ft-test-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).unwrap();
+        let dir = crate::testutil::test_dir("ft-test");
         let go = |_: Event| ControlFlow::Continue(());
         let pre = train(
             &config(3),
@@ -1185,7 +1179,6 @@ mod tests {
             approx::assert_abs_diff_eq!(*a, b + 0.5, epsilon = 1e-4);
         }
         assert!(tuned.training.fine_tuned_from.unwrap().refit_prep);
-        std::fs::remove_dir_all(&dir).unwrap();
     }
 
     #[test]

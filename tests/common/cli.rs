@@ -1,6 +1,7 @@
 //! Helpers shared by the tests that run the built binary: running
 //! `tactread` (optionally in a folder or with standard input), a fresh
-//! scratch folder per test, and paths as `&str` arguments.
+//! scratch folder per test that removes itself when the test ends (also
+//! on a panic), and paths as `&str` arguments.
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -46,17 +47,70 @@ pub fn tactread_with_stdin(args: &[&str], stdin: Option<&str>) -> Output {
     child.wait_with_output().expect("the binary finishes")
 }
 
-/// A fresh, empty scratch folder for one test, unique to this test binary,
-/// `name` and process.
-pub fn scratch(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!(
-        "tactread-{}-{name}-{}",
-        env!("CARGO_CRATE_NAME"),
-        std::process::id()
-    ));
-    let _ = std::fs::remove_dir_all(&dir);
-    std::fs::create_dir_all(&dir).expect("the scratch folder can be made");
-    dir
+/// The environment variable that keeps test folders when set to `1`
+/// (for looking at what a failing test left).
+pub const KEEP_VAR: &str = "TACTREAD_KEEP_TEST_DIRS";
+
+/// A scratch folder for one test, held for the whole test: dropping it
+/// (when the test returns or panics) removes the folder and everything in
+/// it, unless [`KEEP_VAR`] was `1` when it was made. Derefs to [`Path`].
+#[derive(Debug)]
+pub struct TestDir {
+    /// The guard that removes the folder on drop; `None` when kept.
+    _guard: Option<tempfile::TempDir>,
+    path: PathBuf,
+}
+
+impl TestDir {
+    /// The folder.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+}
+
+impl std::ops::Deref for TestDir {
+    type Target = Path;
+    fn deref(&self) -> &Path {
+        &self.path
+    }
+}
+
+impl AsRef<Path> for TestDir {
+    fn as_ref(&self) -> &Path {
+        &self.path
+    }
+}
+
+/// Whether [`KEEP_VAR`] asks to keep test folders.
+pub fn keep_test_dirs() -> bool {
+    std::env::var_os(KEEP_VAR).is_some_and(|v| v == "1")
+}
+
+/// A fresh, empty folder `tactread-<name>-<random>` in the system temp
+/// folder, unique even across test processes run at once. Kept folders
+/// are named on standard error.
+pub fn test_dir(name: &str) -> TestDir {
+    let guard = tempfile::Builder::new()
+        .prefix(&format!("tactread-{name}-"))
+        .tempdir()
+        .expect("a test folder can be made in the temp folder");
+    if keep_test_dirs() {
+        let path = guard.keep();
+        eprintln!("{KEEP_VAR}=1: keeping {}", path.display());
+        TestDir { _guard: None, path }
+    } else {
+        let path = guard.path().to_path_buf();
+        TestDir {
+            _guard: Some(guard),
+            path,
+        }
+    }
+}
+
+/// A fresh, empty scratch folder for one test,
+/// `tactread-<test file>-<name>-<random>` (see [`test_dir`]).
+pub fn scratch(name: &str) -> TestDir {
+    test_dir(&format!("{}-{name}", env!("CARGO_CRATE_NAME")))
 }
 
 /// A path as a command-line argument (test paths are UTF-8).
