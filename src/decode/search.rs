@@ -572,16 +572,28 @@ impl<R: CodeReader> BeamSearch<R> {
         sib.clear();
         sib.resize(n, NIL);
         if n > 1 {
-            self.member.clear();
-            for (i, h) in beam.iter().enumerate() {
-                self.member.insert(h.cnode, i as u32);
+            // A small beam finds parents by a linear search (cheaper than
+            // hashing every member); the last match wins, as in the map.
+            let linear = n <= LINEAR_MERGE;
+            if !linear {
+                self.member.clear();
+                for (i, h) in beam.iter().enumerate() {
+                    self.member.insert(h.cnode, i as u32);
+                }
             }
             for (i, h) in beam.iter().enumerate() {
                 if h.cnode == ROOT {
                     continue;
                 }
                 let parent = self.cells.nodes[h.cnode as usize].parent;
-                if let Some(&j) = self.member.get(&parent) {
+                let j = if linear {
+                    beam.iter()
+                        .rposition(|b| b.cnode == parent)
+                        .map(|j| j as u32)
+                } else {
+                    self.member.get(&parent).copied()
+                };
+                if let Some(j) = j {
                     sib[i] = kid[j as usize];
                     kid[j as usize] = i as u32;
                 }
