@@ -407,6 +407,47 @@ fn rescoring_repairs_misread_words_and_keeps_numbers_and_names() {
 }
 
 #[test]
+fn rescoring_joins_split_words_and_splits_merged_ones() {
+    let table = en();
+    let lexicon = Lexicon::builtin("en").unwrap();
+    // "the harbour gate opens from the pier" (invented notice). The network
+    // reads the `a` of "gate" (dot 1) as a space, the empty cell (0.6
+    // against 0.4), so "gate" comes out as "g te"; and it reads the space
+    // between "from" and "the" as `a` (0.6 against 0.4), so they come out as
+    // one word "fromathe". Rescoring one word at a time cannot repair
+    // either.
+    let mut cells = confident("the harbour g");
+    cells.push((0, 0.6, Some(mask_of('a'))));
+    cells.extend(confident("te opens from"));
+    cells.push((mask_of('a'), 0.6, Some(0)));
+    cells.extend(confident("the pier"));
+    let lp = frames_for(&cells);
+    let plain = Decoder::new(&table, BeamParams::default()).unwrap();
+    let raw = plain.decode(lp.view()).unwrap();
+    assert_eq!(raw.text, "the harbour g te opens fromathe pier");
+
+    let decoder = Decoder::new(&table, BeamParams::default())
+        .unwrap()
+        .with_lexicon(&lexicon, RescoreWeights::default())
+        .unwrap();
+    let fixed = decoder.decode(lp.view()).unwrap();
+    assert_eq!(fixed.text, "the harbour gate opens from the pier");
+    let changed: Vec<(&str, &str)> = fixed
+        .words
+        .iter()
+        .filter(|w| w.raw != w.chosen)
+        .map(|w| (w.raw.as_str(), w.chosen.as_str()))
+        .collect();
+    assert_eq!(changed, vec![("g te", "gate"), ("fromathe", "from the")]);
+    // The joined entry covers both words' cells and the space between.
+    let gate = fixed.words.iter().find(|w| w.chosen == "gate").unwrap();
+    assert_eq!(gate.cells.1 - gate.cells.0, 4);
+    // Confident neighbours stay apart ("opens" and "pier" are listed).
+    assert!(fixed.words.iter().any(|w| w.chosen == "opens"));
+    assert!(fixed.words.iter().any(|w| w.chosen == "pier"));
+}
+
+#[test]
 fn rescoring_keeps_capitals() {
     let table = en();
     let lexicon = Lexicon::builtin("en").unwrap();

@@ -718,9 +718,16 @@ impl<'d, 'a, C: BrailleCode> WordFinisher<'d, 'a, C> {
             while i < k && cells[i] != Cell::EMPTY {
                 i += 1;
             }
+            // A pair of words that rescoring joined into one covers this
+            // word, the space and the next word.
+            let choice = choices
+                .iter()
+                .find(|c| c.cells.0 == s && (c.cells.1 == i || (c.cells.1 > i && c.cells.1 <= k)));
+            if let Some(c) = choice {
+                i = c.cells.1;
+            }
             let raw_cells = &cells[s..i];
             let raw = super::read_cells(code, raw_cells);
-            let choice = choices.iter().find(|c| c.cells == (s, i));
             let chosen: Vec<Cell> = match choice {
                 Some(c) if c.chosen != c.raw => code
                     .encode(&c.chosen)

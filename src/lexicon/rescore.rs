@@ -20,6 +20,25 @@
 //! read unless a listed word explains the frames nearly as well. Words
 //! without letters (numbers, punctuation) are never rescored.
 //!
+//! Two more kinds of candidate repair word boundaries, the commonest
+//! error that one-word rescoring cannot touch (the empty cell is the
+//! space, so a lost dot 1 turns `a` into a space and a spurious one a space
+//! into `a`):
+//!
+//! - **Split**: a word the lexicon does not hold may be two listed words
+//!   whose space was lost, or read as a letter. Every split of its cells
+//!   whose two sides both read as listed words is a candidate `x y`, scored
+//!   like any other on the word's frames, with `ln P(x) + ln P(y)` as its
+//!   lexicon term (a unigram model) and the space counted as an edit.
+//! - **Join**: two neighbouring words one space apart, at least one of them
+//!   unlisted or a single letter, may be one listed word read in two (the
+//!   space spurious, or a misread letter). The lexicon words within one
+//!   edit of their letters joined (two for 6 letters or more) are scored on
+//!   the frames of both words and the space, against the two words' own
+//!   choices plus the space's evidence; pairs are joined left to right.
+//!
+//! In streaming, a join needs both words in one commit.
+//!
 //! To save time, [`rescore`] does not write out and score a candidate that
 //! could only win if its evidence beat the beam's own cells by more than 3
 //! nats (the beam's cells are, nearly always, the best explanation of the
@@ -188,9 +207,48 @@ impl Slot {
             - w.substitution_penalty * c.subs as f64
             - w.indel_penalty * c.indels as f64
     }
+    /// The score of the chosen reading.
+    fn chosen_score(&self, w: &RescoreWeights) -> f64 {
+        self.choose(w)
+            .map_or_else(|| self.raw_score(w), |c| Slot::cand_score(c, w))
+    }
+
     /// The chosen candidate: `None` keeps the raw reading.
     fn choose(&self, w: &RescoreWeights) -> Option<&Cand> {
         let mut best = self.raw_score(w);
+        let mut pick = None;
+        for c in &self.cands {
+            let s = Slot::cand_score(c, w);
+            if s > best {
+                best = s;
+                pick = Some(c);
+            }
+        }
+        pick
+    }
+}
+
+/// Two neighbouring words (`slots[first]` and `slots[first + 1]`, one
+/// space cell apart) that may be one listed word read in two: the space
+/// was spurious, or a letter read as the space. Its candidates replace
+/// both words and the space; they are scored on the frames of both words
+/// and the space. Weight-independent, like [`Slot`].
+#[derive(Debug, Clone)]
+struct Pair {
+    first: usize,
+    frames: (usize, usize),
+    raw: String,
+    /// Evidence of the space cell's frames: the raw cells' evidence over
+    /// the joined frames less the two words' own, so that a pair's
+    /// candidates compete with `score(first) + score(first + 1) + space`.
+    space_evidence: f64,
+    cands: Vec<Cand>,
+}
+
+impl Pair {
+    /// The best candidate if it beats the two words' choices (`scores`).
+    fn choose(&self, w: &RescoreWeights, scores: (f64, f64)) -> Option<&Cand> {
+        let mut best = scores.0 + scores.1 + self.space_evidence;
         let mut pick = None;
         for c in &self.cands {
             let s = Slot::cand_score(c, w);
@@ -345,6 +403,25 @@ fn slots<C: BrailleCode>(
                 });
             }
         }
+        if raw_log_prob.is_none() && letters >= weights.min_letters.max(2) {
+            let raw_score =
+                raw_evidence + weights.lm_weight * raw_log_prob.unwrap_or(weights.oov_log_prob);
+            for split in split_candidates(&raw_cells, &raw, code, lexicon) {
+                if prefilter {
+                    let bound = raw_evidence + EVIDENCE_SLACK + weights.lm_weight * split.log_prob
+                        - weights.substitution_penalty * split.subs as f64
+                        - weights.indel_penalty * split.indels as f64;
+                    if bound <= raw_score {
+                        continue;
+                    }
+                }
+                let evidence = span_log_likelihood(frames, from, to, &split.cells);
+                if evidence == f64::NEG_INFINITY {
+                    continue;
+                }
+                cands.push(Cand { evidence, ..split });
+            }
+        }
         out.push(Slot {
             cells: (start, end),
             frames: (from, to),
@@ -358,24 +435,233 @@ fn slots<C: BrailleCode>(
     out
 }
 
+/// Two listed words that a word not in the lexicon may be, read as one
+/// because the space between them was lost (`raw_cells` split between two
+/// cells) or read as a letter (one cell of `raw_cells` taken as the space):
+/// every split whose two sides both read as listed words (their letters;
+/// punctuation may lead the first or trail the second), unscored
+/// (`evidence` 0). The lexicon log-probability of a pair is the sum of its
+/// words' (a unigram model); the space is an edit like any other
+/// character.
+fn split_candidates<C: BrailleCode>(
+    raw_cells: &[Cell],
+    raw: &str,
+    code: &C,
+    lexicon: &Lexicon,
+) -> Vec<Cand> {
+    let n = raw_cells.len();
+    let raw_lower = raw.to_lowercase();
+    let mut out: Vec<Cand> = Vec::new();
+    for i in 1..n {
+        // (cells before, cells after): the space lost at i, or cell i read
+        // for it.
+        let lost = (&raw_cells[..i], &raw_cells[i..]);
+        let misread = (&raw_cells[..i], raw_cells.get(i + 1..).unwrap_or(&[]));
+        for (left, right) in [lost, misread] {
+            if right.is_empty() {
+                continue;
+            }
+            // The left side first: most splits end there.
+            let a = read_cells(code, left);
+            let (_, a_core, a_trail) = split_core(&a);
+            if a_core.is_empty() || !a_trail.is_empty() {
+                continue;
+            }
+            let Some(la) = lexicon.log_prob(a_core) else {
+                continue;
+            };
+            let b = read_cells(code, right);
+            let (b_lead, b_core, _) = split_core(&b);
+            if b_core.is_empty() || !b_lead.is_empty() {
+                continue;
+            }
+            let Some(lb) = lexicon.log_prob(b_core) else {
+                continue;
+            };
+            let text = format!("{a} {b}");
+            if out.iter().any(|c| c.text == text) {
+                continue;
+            }
+            let Ok(cells) = code.encode(&text) else {
+                continue;
+            };
+            let (subs, indels) = edit_ops(&raw_lower, &text.to_lowercase());
+            out.push(Cand {
+                text,
+                cells,
+                evidence: 0.0,
+                log_prob: la + lb,
+                subs,
+                indels,
+            });
+        }
+    }
+    out
+}
+
+/// Neighbouring words worth trying as one (see [`Pair`]): one space cell
+/// apart, at least one of them not in the lexicon or a single letter, and
+/// their letters joined within `max_edits` edits of a listed word (one more
+/// edit when the space stood for a lost letter).
+fn pairs<C: BrailleCode>(
+    frames: &Pruned,
+    reading: &Reading,
+    slots: &[Slot],
+    code: &C,
+    lexicon: &Lexicon,
+    weights: &RescoreWeights,
+    prefilter: bool,
+) -> Vec<Pair> {
+    let mut out = Vec::new();
+    if weights.max_edits == 0 {
+        return out;
+    }
+    for k in 0..slots.len().saturating_sub(1) {
+        let (a, b) = (&slots[k], &slots[k + 1]);
+        if b.cells.0 != a.cells.1 + 1 {
+            continue;
+        }
+        let (a_lead, a_core, a_trail) = split_core(&a.raw);
+        let (b_lead, b_core, b_trail) = split_core(&b.raw);
+        if a_core.is_empty() || b_core.is_empty() || !a_trail.is_empty() || !b_lead.is_empty() {
+            continue;
+        }
+        let short = |c: &str| c.chars().count() == 1;
+        if a.raw_log_prob.is_some() && b.raw_log_prob.is_some() && !short(a_core) && !short(b_core)
+        {
+            continue;
+        }
+        let joined = format!("{a_core}{b_core}");
+        let letters = joined.chars().count();
+        // Longer joins would need the slow walk of the whole fst (see
+        // `Lexicon::near`); words of more than 14 letters are rare.
+        if !(3..=14).contains(&letters) {
+            continue;
+        }
+        // One edit for the space (dropped, or the letter it stood for), one
+        // more for joined words of 6 letters or more.
+        let edits = if letters >= 6 && weights.max_edits >= 2 {
+            2
+        } else {
+            1
+        };
+        let from = a.frames.0;
+        let to = b.frames.1.max(from);
+        let mut raw_cells = a.raw_cells.clone();
+        raw_cells.push(reading.cells[a.cells.1].cell);
+        raw_cells.extend_from_slice(&b.raw_cells);
+        let raw_union = span_log_likelihood(frames, from, to, &raw_cells);
+        if raw_union == f64::NEG_INFINITY {
+            continue;
+        }
+        let raw = format!("{} {}", a.raw, b.raw);
+        let raw_lower = format!("{} {}", a_core, b_core).to_lowercase();
+        let mut cands = Vec::new();
+        // The two words as read score at least this (as in `slots`).
+        let raw_score = a.raw_score(weights) + b.raw_score(weights) + raw_union
+            - a.raw_evidence
+            - b.raw_evidence;
+        for near in lexicon.near(&joined, edits) {
+            let (subs, indels) = edit_ops(&raw_lower, &near.word);
+            let log_prob = lexicon.log_prob_of_count(near.count);
+            if prefilter {
+                let bound = raw_union + EVIDENCE_SLACK + weights.lm_weight * log_prob
+                    - weights.substitution_penalty * subs as f64
+                    - weights.indel_penalty * indels as f64;
+                if bound <= raw_score {
+                    continue;
+                }
+            }
+            let text = format!("{a_lead}{}{b_trail}", recase(&near.word, a_core));
+            let Ok(cand_cells) = code.encode(&text) else {
+                continue;
+            };
+            let evidence = span_log_likelihood(frames, from, to, &cand_cells);
+            if evidence == f64::NEG_INFINITY {
+                continue;
+            }
+            cands.push(Cand {
+                text,
+                cells: cand_cells,
+                evidence,
+                log_prob,
+                subs,
+                indels,
+            });
+        }
+        if !cands.is_empty() {
+            out.push(Pair {
+                first: k,
+                frames: (from, to),
+                raw,
+                space_evidence: raw_union - a.raw_evidence - b.raw_evidence,
+                cands,
+            });
+        }
+    }
+    out
+}
+
+/// What rescoring chose: a replacement per word (`None` keeps it), and the
+/// pairs joined (index into the pairs, candidate), which take the place of
+/// both their words.
+struct Choices<'s> {
+    words: Vec<Option<&'s Cand>>,
+    joined: Vec<(usize, &'s Cand)>,
+}
+
+/// Choose every word's reading, then join pairs left to right where a
+/// pair's candidate beats its two words' choices and the space.
+fn choose_all<'s>(slots: &'s [Slot], pairs: &'s [Pair], w: &RescoreWeights) -> Choices<'s> {
+    let words: Vec<Option<&Cand>> = slots.iter().map(|s| s.choose(w)).collect();
+    let mut joined = Vec::new();
+    let mut taken_until = 0;
+    for (i, p) in pairs.iter().enumerate() {
+        if p.first < taken_until {
+            continue;
+        }
+        let scores = (
+            slots[p.first].chosen_score(w),
+            slots[p.first + 1].chosen_score(w),
+        );
+        if let Some(c) = p.choose(w, scores) {
+            joined.push((i, c));
+            taken_until = p.first + 2;
+        }
+    }
+    Choices { words, joined }
+}
+
 /// The text of the reading's cells with word `slots[k]`'s cells replaced by
-/// `choices[k]`'s, read again from the start with the code's reader.
+/// its choice's, and a joined pair's words and space by the pair's choice,
+/// read again from the start with the code's reader.
 fn assemble<C: BrailleCode>(
     code: &C,
     reading: &Reading,
     slots: &[Slot],
-    choices: &[Option<&Cand>],
+    pairs: &[Pair],
+    choices: &Choices<'_>,
 ) -> String {
-    if choices.iter().all(Option::is_none) {
+    if choices.words.iter().all(Option::is_none) && choices.joined.is_empty() {
         return reading.text.clone();
     }
     let cells = &reading.cells;
     let mut out: Vec<Cell> = Vec::with_capacity(cells.len() + 4);
+    let mut joined = choices.joined.iter().peekable();
     let mut k = 0;
     let mut i = 0;
     while i < cells.len() {
         if k < slots.len() && slots[k].cells.0 == i {
-            match choices[k] {
+            if let Some(&&(p, c)) = joined.peek() {
+                if pairs[p].first == k {
+                    joined.next();
+                    out.extend_from_slice(&c.cells);
+                    i = slots[k + 1].cells.1;
+                    k += 2;
+                    continue;
+                }
+            }
+            match choices.words[k] {
                 Some(c) => out.extend_from_slice(&c.cells),
                 None => out.extend_from_slice(&slots[k].raw_cells),
             }
@@ -419,6 +705,57 @@ fn report(slot: &Slot, weights: &RescoreWeights) -> WordChoice {
     }
 }
 
+/// One [`WordChoice`] per word, a joined pair's two words as one entry.
+fn report_all(
+    slots: &[Slot],
+    pairs: &[Pair],
+    choices: &Choices<'_>,
+    weights: &RescoreWeights,
+) -> Vec<WordChoice> {
+    let mut out = Vec::with_capacity(slots.len());
+    let mut joined = choices.joined.iter().peekable();
+    let mut k = 0;
+    while k < slots.len() {
+        if let Some(&&(p, chosen)) = joined.peek() {
+            let pair = &pairs[p];
+            if pair.first == k {
+                joined.next();
+                let (a, b) = (&slots[k], &slots[k + 1]);
+                let mut candidates = vec![WordCandidate {
+                    text: pair.raw.clone(),
+                    evidence: a.raw_evidence + pair.space_evidence + b.raw_evidence,
+                    log_prob: None,
+                    substitutions: 0,
+                    indels: 0,
+                    score: a.chosen_score(weights) + pair.space_evidence + b.chosen_score(weights),
+                }];
+                candidates.extend(pair.cands.iter().map(|c| WordCandidate {
+                    text: c.text.clone(),
+                    evidence: c.evidence,
+                    log_prob: Some(c.log_prob),
+                    substitutions: c.subs,
+                    indels: c.indels,
+                    score: Slot::cand_score(c, weights),
+                }));
+                candidates.sort_by(|a, b| b.score.total_cmp(&a.score));
+                candidates.truncate(REPORTED);
+                out.push(WordChoice {
+                    raw: pair.raw.clone(),
+                    chosen: chosen.text.clone(),
+                    cells: (a.cells.0, b.cells.1),
+                    frames: pair.frames,
+                    candidates,
+                });
+                k += 2;
+                continue;
+            }
+        }
+        out.push(report(&slots[k], weights));
+        k += 1;
+    }
+    out
+}
+
 pub(crate) fn rescore_pruned<C: BrailleCode>(
     frames: &Pruned,
     reading: &Reading,
@@ -427,10 +764,11 @@ pub(crate) fn rescore_pruned<C: BrailleCode>(
     weights: &RescoreWeights,
 ) -> Rescored {
     let slots = slots(frames, reading, code, lexicon, weights, true);
-    let choices: Vec<Option<&Cand>> = slots.iter().map(|s| s.choose(weights)).collect();
+    let pairs = pairs(frames, reading, &slots, code, lexicon, weights, true);
+    let choices = choose_all(&slots, &pairs, weights);
     Rescored {
-        text: assemble(code, reading, &slots, &choices),
-        words: slots.iter().map(|s| report(s, weights)).collect(),
+        text: assemble(code, reading, &slots, &pairs, &choices),
+        words: report_all(&slots, &pairs, &choices, weights),
     }
 }
 
@@ -545,10 +883,11 @@ pub fn tune<C: BrailleCode>(
         let reading = crate::decode::read_pruned(&frames, code.reader(), beam)?;
         // Every candidate is scored: the grid changes the weights.
         let s = slots(&frames, &reading, code, lexicon, base, false);
+        let p = pairs(&frames, &reading, &s, code, lexicon, base, false);
         let (w, e) = word_errors(&reading.text, item.truth);
         raw_words += w;
         raw_edits += e;
-        prepared.push((reading, s, item.truth));
+        prepared.push((reading, s, p, item.truth));
     }
     let mut best: Option<(f64, RescoreWeights)> = None;
     let mut tried = 0;
@@ -566,9 +905,9 @@ pub fn tune<C: BrailleCode>(
                     w.check()?;
                     tried += 1;
                     let (mut words, mut edits) = (0, 0);
-                    for (reading, s, truth) in &prepared {
-                        let choices: Vec<Option<&Cand>> = s.iter().map(|x| x.choose(&w)).collect();
-                        let text = assemble(code, reading, s, &choices);
+                    for (reading, s, p, truth) in &prepared {
+                        let choices = choose_all(s, p, &w);
+                        let text = assemble(code, reading, s, p, &choices);
                         let (a, b) = word_errors(&text, truth);
                         words += a;
                         edits += b;
