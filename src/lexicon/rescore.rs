@@ -547,28 +547,21 @@ fn pairs<C: BrailleCode>(
         };
         let from = a.frames.0;
         let to = b.frames.1.max(from);
-        let mut raw_cells = a.raw_cells.clone();
-        raw_cells.push(reading.cells[a.cells.1].cell);
-        raw_cells.extend_from_slice(&b.raw_cells);
-        let raw_union = span_log_likelihood(frames, from, to, &raw_cells);
-        if raw_union == f64::NEG_INFINITY {
-            continue;
-        }
         let raw = format!("{} {}", a.raw, b.raw);
         let raw_lower = format!("{} {}", a_core, b_core).to_lowercase();
+        // What the two words as read score beyond their evidence (as in
+        // `slots`); the evidence of the joined frames cancels out of the
+        // test below, so it is computed only for a pair worth scoring.
+        let raw_lm = a.raw_score(weights) - a.raw_evidence + b.raw_score(weights) - b.raw_evidence;
         let mut cands = Vec::new();
-        // The two words as read score at least this (as in `slots`).
-        let raw_score = a.raw_score(weights) + b.raw_score(weights) + raw_union
-            - a.raw_evidence
-            - b.raw_evidence;
         for near in lexicon.near(&joined, edits) {
             let (subs, indels) = edit_ops(&raw_lower, &near.word);
             let log_prob = lexicon.log_prob_of_count(near.count);
             if prefilter {
-                let bound = raw_union + EVIDENCE_SLACK + weights.lm_weight * log_prob
+                let bound = EVIDENCE_SLACK + weights.lm_weight * log_prob
                     - weights.substitution_penalty * subs as f64
                     - weights.indel_penalty * indels as f64;
-                if bound <= raw_score {
+                if bound <= raw_lm {
                     continue;
                 }
             }
@@ -589,15 +582,23 @@ fn pairs<C: BrailleCode>(
                 indels,
             });
         }
-        if !cands.is_empty() {
-            out.push(Pair {
-                first: k,
-                frames: (from, to),
-                raw,
-                space_evidence: raw_union - a.raw_evidence - b.raw_evidence,
-                cands,
-            });
+        if cands.is_empty() {
+            continue;
         }
+        let mut raw_cells = a.raw_cells.clone();
+        raw_cells.push(reading.cells[a.cells.1].cell);
+        raw_cells.extend_from_slice(&b.raw_cells);
+        let raw_union = span_log_likelihood(frames, from, to, &raw_cells);
+        if raw_union == f64::NEG_INFINITY {
+            continue;
+        }
+        out.push(Pair {
+            first: k,
+            frames: (from, to),
+            raw,
+            space_evidence: raw_union - a.raw_evidence - b.raw_evidence,
+            cands,
+        });
     }
     out
 }
