@@ -50,7 +50,9 @@
 //! the next space cell's, so blank frames at its edges can absorb an extra
 //! or a missing cell.
 
-use crate::decode::{read_cells, span_log_likelihood, BeamParams, BrailleCode, Pruned, Reading};
+use crate::decode::{
+    read_cells, span_log_likelihood, BeamParams, BrailleCode, CodeReader, Pruned, Reading,
+};
 use crate::lexicon::Lexicon;
 use crate::{Cell, Error, Result};
 use ndarray::ArrayView2;
@@ -452,24 +454,26 @@ fn split_candidates<C: BrailleCode>(
     let n = raw_cells.len();
     let raw_lower = raw.to_lowercase();
     let mut out: Vec<Cand> = Vec::new();
+    // The text of every prefix, read once with one reader.
+    let mut reader = code.reader();
+    let mut read = String::new();
     for i in 1..n {
-        // (cells before, cells after): the space lost at i, or cell i read
-        // for it.
-        let lost = (&raw_cells[..i], &raw_cells[i..]);
-        let misread = (&raw_cells[..i], raw_cells.get(i + 1..).unwrap_or(&[]));
-        for (left, right) in [lost, misread] {
+        reader.push_into(raw_cells[i - 1], &mut read);
+        let mut a = read.clone();
+        a.push_str(&reader.clone().finish());
+        // The left side first: most splits end there.
+        let (_, a_core, a_trail) = split_core(&a);
+        if a_core.is_empty() || !a_trail.is_empty() {
+            continue;
+        }
+        let Some(la) = lexicon.log_prob(a_core) else {
+            continue;
+        };
+        // The cells after: the space lost at i, or cell i read for it.
+        for right in [&raw_cells[i..], raw_cells.get(i + 1..).unwrap_or(&[])] {
             if right.is_empty() {
                 continue;
             }
-            // The left side first: most splits end there.
-            let a = read_cells(code, left);
-            let (_, a_core, a_trail) = split_core(&a);
-            if a_core.is_empty() || !a_trail.is_empty() {
-                continue;
-            }
-            let Some(la) = lexicon.log_prob(a_core) else {
-                continue;
-            };
             let b = read_cells(code, right);
             let (b_lead, b_core, _) = split_core(&b);
             if b_core.is_empty() || !b_lead.is_empty() {
