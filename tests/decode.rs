@@ -361,6 +361,15 @@ fn mask_of(ch: char) -> u8 {
 /// English Braille", 2nd ed. 2013, section 8).
 const CAPITAL: u8 = 0b10_0000;
 
+/// (as read, as chosen) for every word rescoring changed.
+fn changed_words(d: &tactread::decode::Decoded) -> Vec<(&str, &str)> {
+    d.words
+        .iter()
+        .filter(|w| w.raw != w.chosen)
+        .map(|w| (w.raw.as_str(), w.chosen.as_str()))
+        .collect()
+}
+
 #[test]
 fn rescoring_repairs_misread_words_and_keeps_numbers_and_names() {
     let table = en();
@@ -390,12 +399,7 @@ fn rescoring_repairs_misread_words_and_keeps_numbers_and_names() {
         .unwrap();
     let fixed = decoder.decode(lp.view()).unwrap();
     assert_eq!(fixed.text, "the cat sat by dog 42 zog");
-    let changed: Vec<(&str, &str)> = fixed
-        .words
-        .iter()
-        .filter(|w| w.raw != w.chosen)
-        .map(|w| (w.raw.as_str(), w.chosen.as_str()))
-        .collect();
+    let changed = changed_words(&fixed);
     assert_eq!(changed, vec![("cet", "cat"), ("dpg", "dog")]);
     // "42" has no letters: it is not even a rescoring slot.
     assert!(fixed.words.iter().all(|w| w.raw != "42"));
@@ -432,12 +436,7 @@ fn rescoring_joins_split_words_and_splits_merged_ones() {
         .unwrap();
     let fixed = decoder.decode(lp.view()).unwrap();
     assert_eq!(fixed.text, "the harbour gate opens from the pier");
-    let changed: Vec<(&str, &str)> = fixed
-        .words
-        .iter()
-        .filter(|w| w.raw != w.chosen)
-        .map(|w| (w.raw.as_str(), w.chosen.as_str()))
-        .collect();
+    let changed = changed_words(&fixed);
     assert_eq!(changed, vec![("g te", "gate"), ("fromathe", "from the")]);
     // The joined entry covers both words' cells and the space between.
     let gate = fixed.words.iter().find(|w| w.chosen == "gate").unwrap();

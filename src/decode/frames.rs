@@ -37,12 +37,21 @@ pub(crate) fn check(log_probs: &ArrayView2<f32>) -> Result<()> {
 }
 
 fn check_width(log_probs: &ArrayView2<f32>) -> Result<()> {
-    if log_probs.ncols() != N_CLASSES {
+    width(
+        log_probs.ncols(),
+        "columns of the decoder input",
+        "pass the network's [n_frames, 65] log-probability output",
+    )
+}
+
+/// `got` must be [`N_CLASSES`].
+fn width(got: usize, what: &str, hint: &str) -> Result<()> {
+    if got != N_CLASSES {
         return Err(Error::Mismatch {
-            what: "columns of the decoder input".into(),
+            what: what.into(),
             expected: format!("{N_CLASSES} (64 cell patterns, then the CTC blank)"),
-            got: log_probs.ncols().to_string(),
-            hint: "pass the network's [n_frames, 65] log-probability output".into(),
+            got: got.to_string(),
+            hint: hint.into(),
         });
     }
     Ok(())
@@ -146,14 +155,11 @@ pub(crate) fn push_frame(
     max_classes: usize,
     blank_skip: f64,
 ) -> Result<()> {
-    if row.len() != N_CLASSES {
-        return Err(Error::Mismatch {
-            what: "values in a frame of the decoder input".into(),
-            expected: format!("{N_CLASSES} (64 cell patterns, then the CTC blank)"),
-            got: row.len().to_string(),
-            hint: "pass the network's 65 log-probabilities per frame".into(),
-        });
-    }
+    width(
+        row.len(),
+        "values in a frame of the decoder input",
+        "pass the network's 65 log-probabilities per frame",
+    )?;
     let mut x = [0f32; N_CLASSES];
     for (d, &v) in x.iter_mut().zip(row.iter()) {
         *d = v;

@@ -205,9 +205,7 @@ impl Slot {
         self.raw_evidence + w.lm_weight * self.raw_log_prob.unwrap_or(w.oov_log_prob)
     }
     fn cand_score(c: &Cand, w: &RescoreWeights) -> f64 {
-        c.evidence + w.lm_weight * c.log_prob
-            - w.substitution_penalty * c.subs as f64
-            - w.indel_penalty * c.indels as f64
+        c.evidence + prior(w, c.log_prob, c.subs, c.indels)
     }
     /// The score of the chosen reading.
     fn chosen_score(&self, w: &RescoreWeights) -> f64 {
@@ -217,17 +215,23 @@ impl Slot {
 
     /// The chosen candidate: `None` keeps the raw reading.
     fn choose(&self, w: &RescoreWeights) -> Option<&Cand> {
-        let mut best = self.raw_score(w);
-        let mut pick = None;
-        for c in &self.cands {
-            let s = Slot::cand_score(c, w);
-            if s > best {
-                best = s;
-                pick = Some(c);
-            }
-        }
-        pick
+        best_above(&self.cands, w, self.raw_score(w))
     }
+}
+
+/// The first candidate of `cands` with the highest score, if that score is
+/// above `to_beat`.
+fn best_above<'c>(cands: &'c [Cand], w: &RescoreWeights, to_beat: f64) -> Option<&'c Cand> {
+    let mut best = to_beat;
+    let mut pick = None;
+    for c in cands {
+        let s = Slot::cand_score(c, w);
+        if s > best {
+            best = s;
+            pick = Some(c);
+        }
+    }
+    pick
 }
 
 /// Two neighbouring words (`slots[first]` and `slots[first + 1]`, one
@@ -250,17 +254,38 @@ struct Pair {
 impl Pair {
     /// The best candidate if it beats the two words' choices (`scores`).
     fn choose(&self, w: &RescoreWeights, scores: (f64, f64)) -> Option<&Cand> {
-        let mut best = scores.0 + scores.1 + self.space_evidence;
-        let mut pick = None;
-        for c in &self.cands {
-            let s = Slot::cand_score(c, w);
-            if s > best {
-                best = s;
-                pick = Some(c);
-            }
-        }
-        pick
+        best_above(&self.cands, w, scores.0 + scores.1 + self.space_evidence)
     }
+}
+
+/// A candidate before scoring: (text, lexicon log-probability,
+/// substitutions, insertions + deletions from the reading).
+type Unscored = (String, f64, usize, usize);
+
+/// The part of a candidate's score that is not evidence: its lexicon term
+/// less its edit penalties.
+fn prior(w: &RescoreWeights, log_prob: f64, subs: usize, indels: usize) -> f64 {
+    w.lm_weight * log_prob - w.substitution_penalty * subs as f64 - w.indel_penalty * indels as f64
+}
+
+/// `text` written in cells with `code` and scored on `frames[from..to]`:
+/// `None` when the code cannot write it or no alignment can produce it.
+fn scored<C: BrailleCode>(
+    code: &C,
+    frames: &Pruned,
+    (from, to): (usize, usize),
+    (text, log_prob, subs, indels): Unscored,
+) -> Option<Cand> {
+    let cells = code.encode(&text).ok()?;
+    let evidence = span_log_likelihood(frames, from, to, &cells);
+    (evidence > f64::NEG_INFINITY).then_some(Cand {
+        text,
+        cells,
+        evidence,
+        log_prob,
+        subs,
+        indels,
+    })
 }
 
 /// Split a word into (leading non-letters, letters core, trailing
@@ -365,64 +390,38 @@ fn slots<C: BrailleCode>(
         let letters = core.chars().count();
         let raw_log_prob = lexicon.log_prob(core);
         let max_edits = weights.edits_for(letters, raw_log_prob.is_some());
-        let mut cands = Vec::new();
+        let raw_score =
+            raw_evidence + weights.lm_weight * raw_log_prob.unwrap_or(weights.oov_log_prob);
+        let mut unscored: Vec<Unscored> = Vec::new();
         if max_edits > 0 {
             let core_lower = core.to_lowercase();
-            let raw_score =
-                raw_evidence + weights.lm_weight * raw_log_prob.unwrap_or(weights.oov_log_prob);
             for near in lexicon.near(core, max_edits) {
                 if near.word == core_lower {
                     continue;
                 }
                 let (subs, indels) = edit_ops(&core_lower, &near.word);
-                let log_prob = lexicon.log_prob_of_count(near.count);
-                if prefilter {
-                    // The beam's cells are (nearly) the best explanation of
-                    // the span: a candidate whose evidence would have to beat
-                    // them by more than EVIDENCE_SLACK to win is not scored.
-                    let bound = raw_evidence + EVIDENCE_SLACK + weights.lm_weight * log_prob
-                        - weights.substitution_penalty * subs as f64
-                        - weights.indel_penalty * indels as f64;
-                    if bound <= raw_score {
-                        continue;
-                    }
-                }
                 let text = format!("{lead}{}{trail}", recase(&near.word, core));
-                let Ok(cand_cells) = code.encode(&text) else {
-                    continue;
-                };
-                let evidence = span_log_likelihood(frames, from, to, &cand_cells);
-                if evidence == f64::NEG_INFINITY {
-                    continue;
-                }
-                cands.push(Cand {
-                    text,
-                    cells: cand_cells,
-                    evidence,
-                    log_prob,
-                    subs,
-                    indels,
-                });
+                unscored.push((text, lexicon.log_prob_of_count(near.count), subs, indels));
             }
         }
         if raw_log_prob.is_none() && letters >= weights.min_letters.max(2) {
-            let raw_score =
-                raw_evidence + weights.lm_weight * raw_log_prob.unwrap_or(weights.oov_log_prob);
-            for split in split_candidates(&raw_cells, &raw, code, lexicon) {
-                if prefilter {
-                    let bound = raw_evidence + EVIDENCE_SLACK + weights.lm_weight * split.log_prob
-                        - weights.substitution_penalty * split.subs as f64
-                        - weights.indel_penalty * split.indels as f64;
-                    if bound <= raw_score {
-                        continue;
-                    }
-                }
-                let evidence = span_log_likelihood(frames, from, to, &split.cells);
-                if evidence == f64::NEG_INFINITY {
-                    continue;
-                }
-                cands.push(Cand { evidence, ..split });
+            unscored.extend(split_candidates(&raw_cells, &raw, code, lexicon));
+        }
+        let mut cands = Vec::new();
+        for (text, log_prob, subs, indels) in unscored {
+            // The beam's cells are (nearly) the best explanation of the
+            // span: a candidate whose evidence would have to beat them by
+            // more than EVIDENCE_SLACK to win is not scored.
+            let bound = raw_evidence + EVIDENCE_SLACK + prior(weights, log_prob, subs, indels);
+            if prefilter && bound <= raw_score {
+                continue;
             }
+            cands.extend(scored(
+                code,
+                frames,
+                (from, to),
+                (text, log_prob, subs, indels),
+            ));
         }
         out.push(Slot {
             cells: (start, end),
@@ -441,19 +440,19 @@ fn slots<C: BrailleCode>(
 /// because the space between them was lost (`raw_cells` split between two
 /// cells) or read as a letter (one cell of `raw_cells` taken as the space):
 /// every split whose two sides both read as listed words (their letters;
-/// punctuation may lead the first or trail the second), unscored
-/// (`evidence` 0). The lexicon log-probability of a pair is the sum of its
-/// words' (a unigram model); the space is an edit like any other
-/// character.
+/// punctuation may lead the first or trail the second), as (text, lexicon
+/// log-probability, substitutions, insertions + deletions), unscored. The
+/// lexicon log-probability of a pair is the sum of its words' (a unigram
+/// model); the space is an edit like any other character.
 fn split_candidates<C: BrailleCode>(
     raw_cells: &[Cell],
     raw: &str,
     code: &C,
     lexicon: &Lexicon,
-) -> Vec<Cand> {
+) -> Vec<Unscored> {
     let n = raw_cells.len();
     let raw_lower = raw.to_lowercase();
-    let mut out: Vec<Cand> = Vec::new();
+    let mut out: Vec<Unscored> = Vec::new();
     // The text of every prefix, read once with one reader.
     let mut reader = code.reader();
     let mut read = String::new();
@@ -483,21 +482,11 @@ fn split_candidates<C: BrailleCode>(
                 continue;
             };
             let text = format!("{a} {b}");
-            if out.iter().any(|c| c.text == text) {
+            if out.iter().any(|c| c.0 == text) {
                 continue;
             }
-            let Ok(cells) = code.encode(&text) else {
-                continue;
-            };
             let (subs, indels) = edit_ops(&raw_lower, &text.to_lowercase());
-            out.push(Cand {
-                text,
-                cells,
-                evidence: 0.0,
-                log_prob: la + lb,
-                subs,
-                indels,
-            });
+            out.push((text, la + lb, subs, indels));
         }
     }
     out
@@ -561,30 +550,16 @@ fn pairs<C: BrailleCode>(
         for near in lexicon.near(&joined, edits) {
             let (subs, indels) = edit_ops(&raw_lower, &near.word);
             let log_prob = lexicon.log_prob_of_count(near.count);
-            if prefilter {
-                let bound = EVIDENCE_SLACK + weights.lm_weight * log_prob
-                    - weights.substitution_penalty * subs as f64
-                    - weights.indel_penalty * indels as f64;
-                if bound <= raw_lm {
-                    continue;
-                }
+            if prefilter && EVIDENCE_SLACK + prior(weights, log_prob, subs, indels) <= raw_lm {
+                continue;
             }
             let text = format!("{a_lead}{}{b_trail}", recase(&near.word, a_core));
-            let Ok(cand_cells) = code.encode(&text) else {
-                continue;
-            };
-            let evidence = span_log_likelihood(frames, from, to, &cand_cells);
-            if evidence == f64::NEG_INFINITY {
-                continue;
-            }
-            cands.push(Cand {
-                text,
-                cells: cand_cells,
-                evidence,
-                log_prob,
-                subs,
-                indels,
-            });
+            cands.extend(scored(
+                code,
+                frames,
+                (from, to),
+                (text, log_prob, subs, indels),
+            ));
         }
         if cands.is_empty() {
             continue;
@@ -689,16 +664,7 @@ fn report(slot: &Slot, weights: &RescoreWeights) -> WordChoice {
         indels: 0,
         score: slot.raw_score(weights),
     }];
-    candidates.extend(slot.cands.iter().map(|c| WordCandidate {
-        text: c.text.clone(),
-        evidence: c.evidence,
-        log_prob: Some(c.log_prob),
-        substitutions: c.subs,
-        indels: c.indels,
-        score: Slot::cand_score(c, weights),
-    }));
-    candidates.sort_by(|a, b| b.score.total_cmp(&a.score));
-    candidates.truncate(REPORTED);
+    ranked(&mut candidates, &slot.cands, weights);
     WordChoice {
         raw: slot.raw.clone(),
         chosen: slot
@@ -708,6 +674,21 @@ fn report(slot: &Slot, weights: &RescoreWeights) -> WordChoice {
         frames: slot.frames,
         candidates,
     }
+}
+
+/// `cands` added to `out` (which holds the reading as read) as reported
+/// candidates, best first, at most [`REPORTED`] in all.
+fn ranked(out: &mut Vec<WordCandidate>, cands: &[Cand], weights: &RescoreWeights) {
+    out.extend(cands.iter().map(|c| WordCandidate {
+        text: c.text.clone(),
+        evidence: c.evidence,
+        log_prob: Some(c.log_prob),
+        substitutions: c.subs,
+        indels: c.indels,
+        score: Slot::cand_score(c, weights),
+    }));
+    out.sort_by(|a, b| b.score.total_cmp(&a.score));
+    out.truncate(REPORTED);
 }
 
 /// One [`WordChoice`] per word, a joined pair's two words as one entry.
@@ -734,16 +715,7 @@ fn report_all(
                     indels: 0,
                     score: a.chosen_score(weights) + pair.space_evidence + b.chosen_score(weights),
                 }];
-                candidates.extend(pair.cands.iter().map(|c| WordCandidate {
-                    text: c.text.clone(),
-                    evidence: c.evidence,
-                    log_prob: Some(c.log_prob),
-                    substitutions: c.subs,
-                    indels: c.indels,
-                    score: Slot::cand_score(c, weights),
-                }));
-                candidates.sort_by(|a, b| b.score.total_cmp(&a.score));
-                candidates.truncate(REPORTED);
+                ranked(&mut candidates, &pair.cands, weights);
                 out.push(WordChoice {
                     raw: pair.raw.clone(),
                     chosen: chosen.text.clone(),
