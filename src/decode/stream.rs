@@ -802,15 +802,25 @@ impl<'d, 'a, C: BrailleCode> WordFinisher<'d, 'a, C> {
 fn split_front(window: &mut Pruned, k: usize) -> Pruned {
     let k = k.min(window.blank.len());
     let c0 = window.start[k];
-    let tail = Pruned {
-        blank: window.blank.split_off(k),
-        start: window.start[k..].iter().map(|s| s - c0).collect(),
-        class: window.class.split_off(c0),
-        prob: window.prob.split_off(c0),
-        all: window.all.split_off(k * 64),
+    // The front is copied out and the window keeps its buffers, so that it
+    // does not grow again from nothing (reallocating and touching fresh
+    // pages on the reading thread) after every commit.
+    let front = Pruned {
+        blank: window.blank[..k].to_vec(),
+        start: window.start[..=k].to_vec(),
+        class: window.class[..c0].to_vec(),
+        prob: window.prob[..c0].to_vec(),
+        all: window.all[..k * 64].to_vec(),
     };
-    window.start.truncate(k + 1);
-    std::mem::replace(window, tail)
+    window.blank.drain(..k);
+    window.class.drain(..c0);
+    window.prob.drain(..c0);
+    window.all.drain(..k * 64);
+    window.start.drain(..k);
+    for s in window.start.iter_mut() {
+        *s -= c0;
+    }
+    front
 }
 
 fn empty_window() -> Pruned {
