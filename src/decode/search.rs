@@ -226,7 +226,8 @@ pub(crate) struct CellNode {
     /// Depth of the deepest space cell on the path (this node included); 0
     /// when there is none.
     pub space_depth: u32,
-    /// Frame at which the node was made.
+    /// Frame at which the node was made: the first frame at which its
+    /// extension survived the beam's first cut.
     pub born: u64,
 }
 

@@ -2,8 +2,8 @@
 //! one frame at a time, words committed as soon as they are final, and
 //! each committed word rescored with the lexicon on its own frames.
 //!
-//! The search step is the same prefix beam search as the offline one
-//! (Graves 2012, section 7.5; Hannun et al. 2014, algorithm 1), with the
+//! The search step is the offline search's own step ([`BeamSearch`] in
+//! `search.rs`: Graves 2012, section 7.5; Hannun et al. 2014, algorithm 1), with the
 //! braille code's reader inside every hypothesis and the same merging of
 //! hypotheses of equal text, reader state and last cell, so that a stream
 //! reads what [`Decoder::decode`] reads on the whole recording (see
@@ -168,7 +168,8 @@ struct Search<R: CodeReader> {
 
 /// The trees are rebuilt from the live hypotheses (dropping every node of
 /// committed or abandoned prefixes) when they grow past this many cell
-/// nodes: about 1.5 MB, reached every few hundred frames.
+/// nodes (1 MB of nodes, plus a code reader for each), reached every few
+/// hundred frames.
 const COMPACT_NODES: usize = 1 << 15;
 
 impl<R: CodeReader> Search<R> {
