@@ -4,7 +4,7 @@
 //! median and 99th percentile over more than 10,000 network frames, beside
 //! `Network::step` alone.
 //!
-//! Three rows:
+//! Rows:
 //! - `step_uni_in24_h128_l2`: `Network::step` alone at the reference size
 //!   (24 taxels, hidden 128, 2 layers), 10,000 frames.
 //! - `stream_ref_untrained_in24_h128_l2`: the whole pipeline with a
@@ -16,6 +16,11 @@
 //!   English, simulated `typical` preset): the reference network cost with
 //!   a realistic search and commit load. This is the row the streaming
 //!   latency goal is measured on.
+//! - `search_only_ref_trained_in24_h128_l2`: the incremental search alone
+//!   (`WordStream::step`, no network, no rescoring) on that trained
+//!   model's log-probabilities, read beforehand: the search's own cost,
+//!   for comparison with the pipeline, where network and search share a
+//!   core and its caches.
 //! - `stream_default_in24_h64_l2`: the whole pipeline with the embedded
 //!   default model (trained, 2 x 64): a realistic search and commit load.
 //!
@@ -33,7 +38,7 @@ use rand_chacha::ChaCha8Rng;
 use std::path::Path;
 use std::time::{Duration, Instant};
 use tactread::braille::CodeTable;
-use tactread::decode::{BeamParams, CommitJob, Decoder, StreamParams, WordFinisher};
+use tactread::decode::{BeamParams, CommitJob, Decoder, StreamParams, WordFinisher, WordStream};
 use tactread::lexicon::{Lexicon, RescoreWeights};
 use tactread::net::{GruConfig, Model, Network, SensorSummary, TrainingSummary};
 use tactread::recording::Recording;
@@ -58,9 +63,8 @@ fn thread_cpu() -> Duration {
     Duration::ZERO
 }
 
-/// (coordinate, frame) pairs: the English demo recordings end to end,
-/// `repeats` times, each continuing the previous one's position and time.
-fn frames(repeats: usize, by_position: bool) -> Vec<(f64, Vec<f32>)> {
+/// The English demo recordings, in split and name order.
+fn english_demo() -> Vec<Recording> {
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data");
     let mut recs = Vec::new();
     for split in ["train", "validation", "test"] {
@@ -74,6 +78,13 @@ fn frames(repeats: usize, by_position: bool) -> Vec<(f64, Vec<f32>)> {
             recs.push(Recording::load(&p).expect("demo recording"));
         }
     }
+    recs
+}
+
+/// (coordinate, frame) pairs: the English demo recordings end to end,
+/// `repeats` times, each continuing the previous one's position and time.
+fn frames(repeats: usize, by_position: bool) -> Vec<(f64, Vec<f32>)> {
+    let recs = english_demo();
     let mut out = Vec::new();
     let mut offset = 0.0;
     for _ in 0..repeats {
@@ -253,6 +264,47 @@ fn bench_threaded(name: &str, model: &Model, frames: &[(f64, Vec<f32>)]) {
     );
 }
 
+/// The search alone (`WordStream::step`, commits queued, not rescored)
+/// on the trained model's log-probabilities of the demo recordings, each
+/// read offline beforehand and `repeats` times in all: what the search
+/// costs on a core that does nothing else.
+fn bench_search_only(name: &str, model: &Model, repeats: usize) {
+    let (en, _) = decoder_parts();
+    let decoder = Decoder::new(&en, BeamParams::default()).expect("beam");
+    let rows: Vec<Vec<f32>> = english_demo()
+        .iter()
+        .flat_map(|r| {
+            let lp = tactread::pipeline::log_probs(model, r, "demo").expect("log-probs");
+            lp.outer_iter().map(|row| row.to_vec()).collect::<Vec<_>>()
+        })
+        .collect();
+    let mut stream = WordStream::new(&decoder, StreamParams::default()).expect("stream");
+    let (mut all, mut plain) = (Vec::new(), Vec::new());
+    for _ in 0..repeats {
+        for row in &rows {
+            // Wall time only: the thread CPU clock is a system call, about
+            // as long as a typical step here.
+            let t0 = Instant::now();
+            stream.step(row).expect("valid row");
+            let committed = stream.take_jobs().count() > 0;
+            let dc = t0.elapsed().as_secs_f64() * 1e6;
+            all.push(dc);
+            if !committed {
+                plain.push(dc);
+            }
+        }
+    }
+    println!(
+        "{name}: {} network frames; search step wall median {:.2} us, p99 {:.2} us; \
+         frames without a commit: median {:.2} us, p99 {:.2} us",
+        all.len(),
+        percentile(&mut all, 50),
+        percentile(&mut all, 99),
+        percentile(&mut plain, 50),
+        percentile(&mut plain, 99),
+    );
+}
+
 fn bench_step(n: usize) {
     let c = GruConfig {
         inputs: 24,
@@ -327,6 +379,7 @@ fn main() {
         trained.prep.grid, default.prep.grid,
         "same preprocessing grid"
     );
+    bench_search_only("search_only_ref_trained_in24_h128_l2", &trained, repeats);
     for (name, model) in [
         ("stream_ref_trained_in24_h128_l2", &trained),
         ("stream_ref_untrained_in24_h128_l2", &reference),
