@@ -12,6 +12,8 @@
 //! `cargo bench --bench batch` (5 rounds) or `cargo bench --bench batch --
 //! --quick` (one round of 8 recordings, as CI does).
 
+mod common;
+use common::process_cpu_s;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 use tactread::batch::read_many;
@@ -23,24 +25,6 @@ use tactread::simulate::{corpus_lines, Preset, SimConfig, Simulator};
 use tactread::CodeTable;
 
 const DEFAULT_MODEL: &str = include_str!("../models/default.json");
-
-/// CPU seconds the whole process has used (all threads), where the
-/// platform tells; the machine is shared, so wall time includes waiting.
-fn process_cpu_s() -> Option<f64> {
-    #[cfg(unix)]
-    {
-        let mut ts = libc::timespec {
-            tv_sec: 0,
-            tv_nsec: 0,
-        };
-        // SAFETY: clock_gettime writes one timespec through a valid pointer.
-        let rc = unsafe { libc::clock_gettime(libc::CLOCK_PROCESS_CPUTIME_ID, &mut ts) };
-        if rc == 0 {
-            return Some(ts.tv_sec as f64 + ts.tv_nsec as f64 * 1e-9);
-        }
-    }
-    None
-}
 
 fn median(mut xs: Vec<f64>) -> f64 {
     xs.sort_by(f64::total_cmp);

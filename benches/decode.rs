@@ -7,6 +7,8 @@
 //! `cargo bench --bench decode` (full) or `cargo bench --bench decode --
 //! --quick` (smoke run, as CI does).
 
+mod common;
+use common::thread_cpu;
 use ndarray::Array2;
 use rand::seq::SliceRandom;
 use rand::{Rng, SeedableRng};
@@ -94,27 +96,6 @@ fn synth(
 fn median(mut v: Vec<Duration>) -> Duration {
     v.sort();
     v[v.len() / 2]
-}
-
-/// CPU time of the calling thread: unlike wall time it does not count time
-/// the thread waits for a core, so it holds on a busy shared machine.
-#[cfg(unix)]
-fn thread_cpu() -> Duration {
-    let mut ts = libc::timespec {
-        tv_sec: 0,
-        tv_nsec: 0,
-    };
-    // SAFETY: clock_gettime only writes the timespec we pass.
-    let rc = unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut ts) };
-    if rc != 0 {
-        return Duration::ZERO;
-    }
-    Duration::new(ts.tv_sec as u64, ts.tv_nsec as u32)
-}
-
-#[cfg(not(unix))]
-fn thread_cpu() -> Duration {
-    Duration::ZERO
 }
 
 /// A named method under test.

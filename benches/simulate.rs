@@ -7,6 +7,8 @@
 //! the runs and the time per simulated minute. Single-threaded: one
 //! recording is simulated on one core.
 
+mod common;
+use common::thread_cpu;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::time::{Duration, Instant};
@@ -26,27 +28,6 @@ fn line(n: usize, seed: u64) -> Vec<Cell> {
             }
         })
         .collect()
-}
-
-/// CPU time of the calling thread: unlike wall time it does not count time
-/// the thread waits for a core, so it holds on a busy machine.
-#[cfg(unix)]
-fn thread_cpu() -> Duration {
-    let mut ts = libc::timespec {
-        tv_sec: 0,
-        tv_nsec: 0,
-    };
-    // SAFETY: clock_gettime only writes the timespec we pass.
-    let rc = unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut ts) };
-    if rc != 0 {
-        return Duration::ZERO;
-    }
-    Duration::new(ts.tv_sec as u64, ts.tv_nsec as u32)
-}
-
-#[cfg(not(unix))]
-fn thread_cpu() -> Duration {
-    Duration::ZERO
 }
 
 fn median(mut v: Vec<Duration>) -> Duration {

@@ -32,36 +32,19 @@
 //! Run with `cargo bench --bench stream`; `TACTREAD_BENCH_QUICK=1` for a
 //! smoke run.
 
+mod common;
+use common::thread_cpu;
 use ndarray::Array2;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use std::path::Path;
-use std::time::{Duration, Instant};
+use std::time::Instant;
 use tactread::braille::CodeTable;
 use tactread::decode::{BeamParams, CommitJob, Decoder, StreamParams, WordFinisher, WordStream};
 use tactread::lexicon::{Lexicon, RescoreWeights};
 use tactread::net::{GruConfig, Model, Network, SensorSummary, TrainingSummary};
 use tactread::recording::Recording;
 use tactread::stream::StreamReader;
-
-#[cfg(unix)]
-fn thread_cpu() -> Duration {
-    let mut ts = libc::timespec {
-        tv_sec: 0,
-        tv_nsec: 0,
-    };
-    // SAFETY: clock_gettime only writes the timespec we pass.
-    let rc = unsafe { libc::clock_gettime(libc::CLOCK_THREAD_CPUTIME_ID, &mut ts) };
-    if rc != 0 {
-        return Duration::ZERO;
-    }
-    Duration::new(ts.tv_sec as u64, ts.tv_nsec as u32)
-}
-
-#[cfg(not(unix))]
-fn thread_cpu() -> Duration {
-    Duration::ZERO
-}
 
 /// The English demo recordings, in split and name order.
 fn english_demo() -> Vec<Recording> {
