@@ -121,13 +121,18 @@ fn report(
     );
 }
 
+/// The decoder of the pipeline rows: beam 16 and the builtin lexicon.
+fn with_lexicon<'a>(en: &'a CodeTable, lexicon: &'a Lexicon) -> Decoder<'a, CodeTable> {
+    Decoder::new(en, BeamParams::default())
+        .expect("beam")
+        .with_lexicon(lexicon, RescoreWeights::default())
+        .expect("weights")
+}
+
 /// Everything on one thread: each push rescores the words it commits.
 fn bench_inline(name: &str, model: &Model, frames: &[(f64, Vec<f32>)]) {
     let (en, lexicon) = decoder_parts();
-    let decoder = Decoder::new(&en, BeamParams::default())
-        .expect("beam")
-        .with_lexicon(&lexicon, RescoreWeights::default())
-        .expect("weights");
+    let decoder = with_lexicon(&en, &lexicon);
     let mut reader = StreamReader::new(model, &decoder, StreamParams::default()).expect("uni");
     let mut words = Vec::new();
     let (mut wall, mut cpu) = (Vec::new(), Vec::new());
@@ -166,10 +171,7 @@ fn bench_inline(name: &str, model: &Model, frames: &[(f64, Vec<f32>)]) {
 /// bookkeeping and the hand-over).
 fn bench_threaded(name: &str, model: &Model, frames: &[(f64, Vec<f32>)]) {
     let (en, lexicon) = decoder_parts();
-    let decoder = Decoder::new(&en, BeamParams::default())
-        .expect("beam")
-        .with_lexicon(&lexicon, RescoreWeights::default())
-        .expect("weights");
+    let decoder = with_lexicon(&en, &lexicon);
     let mut reader = StreamReader::new(model, &decoder, StreamParams::default()).expect("uni");
     let (mut wall, mut cpu) = (Vec::new(), Vec::new());
     let mut most_held = 0;

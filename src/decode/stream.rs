@@ -848,6 +848,18 @@ mod tests {
     /// frames, then a blank frame. `(mask, p, alt)`: the cell gets
     /// probability `p` and `alt` (a mask) the rest; 1e-4 floor elsewhere,
     /// renormalised. Frame 0 is blank.
+    /// Frames that read `text` in `code` with every cell at 0.97, two
+    /// frames a cell.
+    fn confident_frames(code: &CodeTable, text: &str) -> Array2<f32> {
+        let cells: Vec<(u8, f64, Option<u8>)> = code
+            .encode(text)
+            .unwrap()
+            .into_iter()
+            .map(|c| (c.mask(), 0.97, None))
+            .collect();
+        frames_for(&cells, 2)
+    }
+
     fn frames_for(cells: &[(u8, f64, Option<u8>)], hold: usize) -> Array2<f32> {
         let row = |top: usize, p: f64, alt: Option<u8>| {
             let mut r = vec![1e-4f64; N_CLASSES];
@@ -1007,13 +1019,7 @@ mod tests {
     fn indicators_carry_across_commits_and_the_first_word_is_final_early() {
         let table = en();
         let decoder = Decoder::new(&table, BeamParams::default()).unwrap();
-        let cells: Vec<(u8, f64, Option<u8>)> = table
-            .encode("Boats 12 at Noon")
-            .unwrap()
-            .into_iter()
-            .map(|c| (c.mask(), 0.97, None))
-            .collect();
-        let lp = frames_for(&cells, 2);
+        let lp = confident_frames(&table, "Boats 12 at Noon");
         let mut s = WordStream::new(&decoder, StreamParams::default()).unwrap();
         let mut words = Vec::new();
         let mut first_at = None;
@@ -1132,13 +1138,7 @@ mod tests {
     fn partial_shows_the_word_being_read() {
         let table = en();
         let decoder = Decoder::new(&table, BeamParams::default()).unwrap();
-        let cells: Vec<(u8, f64, Option<u8>)> = table
-            .encode("seal colony at the point")
-            .unwrap()
-            .into_iter()
-            .map(|c| (c.mask(), 0.97, None))
-            .collect();
-        let lp = frames_for(&cells, 2);
+        let lp = confident_frames(&table, "seal colony at the point");
         let params = StreamParams {
             hold_frames: 6,
             ..StreamParams::default()
